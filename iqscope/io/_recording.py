@@ -1,0 +1,238 @@
+"""The :class:`Recording` type every reader returns, and an in-memory recording.
+
+A recording is a sequence of complex baseband samples with the facts needed to put
+them on a frequency axis: sample rate, centre frequency (if known), capture segments
+and annotations. Samples are read on demand as complex64 blocks scaled so that
+``|x| = 1`` is full scale (0 dBFS); nothing loads a whole file.
+"""
+
+from __future__ import annotations
+
+import math
+from collections.abc import Iterator, Mapping
+from dataclasses import dataclass, field
+from pathlib import Path
+from typing import Any
+
+import numpy as np
+import numpy.typing as npt
+
+from ..errors import MetadataError
+
+__all__ = ["Annotation", "Segment", "Recording", "ArrayRecording", "check_sample_rate"]
+
+#: Upper bound on a believable sample rate (Hz). No receiver we serve comes near it.
+MAX_SAMPLE_RATE_HZ = 1e11
+
+
+@dataclass(frozen=True)
+class Segment:
+    """A capture segment: a run of samples taken with one receiver setting."""
+
+    start: int
+    """Index of the first sample of the segment."""
+    center_frequency_hz: float | None = None
+    """Receiver centre frequency during the segment, Hz (None when unknown)."""
+    datetime: str | None = None
+    """UTC start time as an ISO-8601 string, when known."""
+
+
+@dataclass(frozen=True)
+class Annotation:
+    """A labelled region of a recording (SigMF annotation, or our own results)."""
+
+    start: int
+    """Index of the first sample."""
+    count: int | None = None
+    """Number of samples (None: to the end)."""
+    freq_lower_hz: float | None = None
+    """Lower edge, Hz (RF when the centre frequency is known)."""
+    freq_upper_hz: float | None = None
+    """Upper edge, Hz."""
+    label: str = ""
+    """Short label."""
+    comment: str = ""
+    """Free text."""
+    extra: Mapping[str, Any] = field(default_factory=dict)
+    """Any other keys the source carried."""
+
+
+def check_sample_rate(rate: Any, path: str | Path | None = None) -> float:
+    """Return ``rate`` as a float if it is a believable sample rate, else raise.
+
+    Raises:
+        MetadataError: missing, non-numeric, NaN, zero, negative or above 100 GHz.
+    """
+    if rate is None:
+        raise MetadataError("no sample rate in the metadata; give it with --rate HZ", path)
+    if isinstance(rate, bool):
+        raise MetadataError(f"sample rate {rate!r} is not a number", path)
+    try:
+        value = float(rate)
+    except (TypeError, ValueError):
+        raise MetadataError(f"sample rate {rate!r} is not a number", path) from None
+    if not math.isfinite(value) or value <= 0 or value > MAX_SAMPLE_RATE_HZ:
+        raise MetadataError(f"sample rate {rate!r} Hz is not usable (must be > 0 and finite)", path)
+    return value
+
+
+class Recording:
+    """Complex baseband samples with their sample rate and centre frequency.
+
+    Subclasses implement :meth:`_read`; everything else is shared. Use a recording as a
+    context manager, or call :meth:`close`, to release file handles.
+
+    Attributes:
+        path: the file the samples come from (None for in-memory recordings).
+        format: reader name, e.g. ``"sigmf"``, ``"wav"``, ``"raw"``, ``"hdf5"``, ``"array"``.
+        datatype: sample format in SigMF notation, e.g. ``"ci16_le"``, ``"cf32_le"``.
+        sample_rate_hz: samples per second.
+        center_frequency_hz: receiver centre frequency of the first segment (None if unknown).
+        n_samples: number of complex samples.
+        metadata: the reader's own metadata (read-only view; format-specific).
+        segments: capture segments, at least one.
+        annotations: annotations carried by the file.
+    """
+
+    def __init__(
+        self,
+        *,
+        path: str | Path | None,
+        format: str,
+        datatype: str,
+        sample_rate_hz: float,
+        n_samples: int,
+        center_frequency_hz: float | None = None,
+        metadata: Mapping[str, Any] | None = None,
+        segments: tuple[Segment, ...] | None = None,
+        annotations: tuple[Annotation, ...] = (),
+        warnings: tuple[str, ...] = (),
+    ) -> None:
+        self.path = None if path is None else Path(path)
+        self.format = format
+        self.datatype = datatype
+        self.sample_rate_hz = check_sample_rate(sample_rate_hz, path)
+        if n_samples < 0:
+            raise MetadataError(f"negative sample count {n_samples}", path)
+        self.n_samples = int(n_samples)
+        if center_frequency_hz is not None:
+            cf = float(center_frequency_hz)
+            if not math.isfinite(cf):
+                raise MetadataError(f"centre frequency {center_frequency_hz!r} is not finite", path)
+            center_frequency_hz = cf
+        self.center_frequency_hz = center_frequency_hz
+        self.metadata: Mapping[str, Any] = dict(metadata or {})
+        self.segments = segments or (Segment(0, center_frequency_hz),)
+        self.annotations = annotations
+        #: Soft problems found while opening (e.g. a trailing partial sample ignored).
+        self.warnings: tuple[str, ...] = warnings
+
+    # -- facts -----------------------------------------------------------------------
+    @property
+    def duration_s(self) -> float:
+        """Length of the recording in seconds."""
+        return self.n_samples / self.sample_rate_hz
+
+    @property
+    def name(self) -> str:
+        """A short name for messages: the file name, or ``"<array>"``."""
+        return "<array>" if self.path is None else self.path.name
+
+    def __repr__(self) -> str:
+        return (
+            f"{type(self).__name__}(path={str(self.path)!r}, format={self.format!r}, "
+            f"datatype={self.datatype!r}, sample_rate_hz={self.sample_rate_hz!r}, "
+            f"center_frequency_hz={self.center_frequency_hz!r}, n_samples={self.n_samples})"
+        )
+
+    # -- samples ---------------------------------------------------------------------
+    def _read(self, start: int, count: int) -> npt.NDArray[np.complex64]:
+        """Return samples ``[start, start + count)``; bounds are already checked."""
+        raise NotImplementedError
+
+    def read(self, start: int = 0, count: int | None = None) -> npt.NDArray[np.complex64]:
+        """Read ``count`` samples from ``start`` as complex64 scaled to full scale 1.
+
+        ``count=None`` reads to the end (mind the memory on a large file). Reads past the
+        end are shortened; a negative start or count raises ``ValueError``.
+        """
+        if start < 0:
+            raise ValueError(f"{start=} must be >= 0")
+        if count is None:
+            count = self.n_samples - start
+        if count < 0:
+            raise ValueError(f"{count=} must be >= 0")
+        stop = min(self.n_samples, start + count)
+        if start >= stop:
+            return np.zeros(0, np.complex64)
+        out = np.asarray(self._read(start, stop - start), dtype=np.complex64)
+        return out
+
+    def chunks(
+        self,
+        size: int,
+        overlap: int = 0,
+        start: int = 0,
+        stop: int | None = None,
+    ) -> Iterator[npt.NDArray[np.complex64]]:
+        """Yield successive blocks of ``size`` samples, each overlapping the last by ``overlap``.
+
+        The last block may be shorter. Concatenating the blocks with the overlap removed
+        gives exactly ``read(start, stop - start)``.
+        """
+        if size <= 0:
+            raise ValueError(f"{size=} must be > 0")
+        if not 0 <= overlap < size:
+            raise ValueError(f"{overlap=} must be in [0, size)")
+        stop = self.n_samples if stop is None else min(stop, self.n_samples)
+        step = size - overlap
+        pos = max(0, start)
+        while pos < stop:
+            block = self.read(pos, min(size, stop - pos))
+            if block.size == 0:
+                return
+            yield block
+            if pos + size >= stop:
+                return
+            pos += step
+
+    # -- lifetime --------------------------------------------------------------------
+    def close(self) -> None:
+        """Release file handles (idempotent)."""
+
+    def __enter__(self) -> Recording:
+        return self
+
+    def __exit__(self, *exc: object) -> None:
+        self.close()
+
+
+class ArrayRecording(Recording):
+    """A recording held in memory: synthesized signals, tests, small captures."""
+
+    def __init__(
+        self,
+        samples: npt.ArrayLike,
+        sample_rate_hz: float,
+        center_frequency_hz: float | None = None,
+        *,
+        path: str | Path | None = None,
+        metadata: Mapping[str, Any] | None = None,
+        annotations: tuple[Annotation, ...] = (),
+    ) -> None:
+        data = np.ascontiguousarray(np.asarray(samples), dtype=np.complex64).ravel()
+        data.flags.writeable = False
+        self._data = data
+        super().__init__(
+            path=path,
+            format="array",
+            datatype="cf32_le",
+            sample_rate_hz=sample_rate_hz,
+            n_samples=data.size,
+            center_frequency_hz=center_frequency_hz,
+            metadata=metadata,
+            annotations=annotations,
+        )
+
+    def _read(self, start: int, count: int) -> npt.NDArray[np.complex64]:
+        return self._data[start : start + count]
