@@ -214,7 +214,7 @@ def adev(
 
     >>> y = [892, 809, 823, 798, 671, 644, 883, 903, 677]
     >>> [round(float(v), 5) for v in adev(y, 1.0, data_type="frequency").deviation[:2]]
-    [91.22945, 115.8082]
+    [91.22945, 115.80821]
     """
     return _deviation("adev", data, tau0_s, data_type, factors)
 
