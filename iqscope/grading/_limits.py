@@ -1,0 +1,438 @@
+"""Limits profiles: which value of which measurement passes, warns or fails, per mode.
+
+A profile is a TOML file (schema ``iqscope.limits/1``, documented in ``docs/limits.md``)
+holding a name, a description and a list of rules. Each rule names one measurement
+(a stable key of the JSON contract), optionally the modes it applies to, a *pass*
+region and an optional, looser *warn* region, each given by ``min`` and/or ``max``::
+
+    schema = "iqscope.limits/1"
+    name = "mine"
+    description = "my bench limits"
+
+    [[rule]]
+    measurement = "carrier_suppression_db"
+    modes = ["dsb", "usb", "lsb"]
+    pass = { min = 40.0 }
+    warn = { min = 30.0 }
+    unit = "dB"
+    source = "common practice"
+    advice = "carrier leak: trim the modulator balance"
+
+Shipped presets live in ``iqscope/grading/presets/*.toml``; :func:`load_limits` takes
+either a preset name or a path. Every problem with a profile raises
+:class:`~iqscope.errors.LimitsError` naming the file and the offending key.
+
+This module is pure data and parsing: verdicts are in ``_verdict.py``.
+"""
+
+from __future__ import annotations
+
+import difflib
+import math
+import os
+import sys
+from collections.abc import Mapping, Sequence
+from dataclasses import dataclass
+from importlib import resources
+from pathlib import Path
+from typing import Any, Final
+
+from ..errors import LimitsError
+
+if sys.version_info >= (3, 11):
+    import tomllib
+else:  # pragma: no cover - exercised on 3.10 only
+    import tomli as tomllib
+
+__all__ = [
+    "LIMITS_SCHEMA",
+    "MODES",
+    "Bound",
+    "Rule",
+    "LimitsProfile",
+    "preset_names",
+    "preset_text",
+    "load_limits",
+    "parse_limits",
+    "default_profile",
+    "default_profile_name",
+]
+
+#: Schema identifier written at the top of every profile.
+LIMITS_SCHEMA: Final = "iqscope.limits/1"
+
+#: Resolved emission modes a rule may name (``auto`` is never a resolved mode).
+MODES: Final = ("cw", "am", "dsb", "usb", "lsb", "two-tone")
+
+#: Default preset per resolved mode, used when ``grade`` is given no ``--limits``.
+DEFAULT_PRESET_BY_MODE: Final[Mapping[str, str]] = {
+    "cw": "home-built",
+    "am": "home-built",
+    "dsb": "home-built",
+    "usb": "home-built",
+    "lsb": "home-built",
+    "two-tone": "home-built",
+}
+
+_TOP_KEYS: Final = ("schema", "name", "description", "source", "rule")
+_RULE_KEYS: Final = ("measurement", "modes", "pass", "warn", "unit", "source", "advice")
+_BOUND_KEYS: Final = ("min", "max")
+
+
+@dataclass(frozen=True)
+class Bound:
+    """A closed interval ``[min, max]``; either end may be open (None = unbounded)."""
+
+    min: float | None = None
+    """Smallest value inside, in the measurement's unit (None: no lower end)."""
+    max: float | None = None
+    """Largest value inside (None: no upper end)."""
+
+    def contains(self, value: float) -> bool:
+        """True when ``min <= value <= max`` (ends inclusive)."""
+        if self.min is not None and value < self.min:
+            return False
+        return not (self.max is not None and value > self.max)
+
+    def covers(self, other: Bound) -> bool:
+        """True when every value inside ``other`` is inside this bound."""
+        if self.min is not None and (other.min is None or other.min < self.min):
+            return False
+        return not (self.max is not None and (other.max is None or other.max > self.max))
+
+    def to_json(self) -> dict[str, float]:
+        out: dict[str, float] = {}
+        if self.min is not None:
+            out["min"] = self.min
+        if self.max is not None:
+            out["max"] = self.max
+        return out
+
+    def describe(self, unit: str = "", ascii_only: bool = True) -> str:
+        """A short text such as ``">= 40 dB"``, ``"<= 3000 Hz"`` or ``"-1 .. 1 dB"``."""
+        ge, le = (">=", "<=") if ascii_only else ("\u2265", "\u2264")
+        u = "" if unit in ("", "1") else f" {unit}"
+        if self.min is not None and self.max is not None:
+            return f"{_num(self.min)} .. {_num(self.max)}{u}"
+        if self.min is not None:
+            return f"{ge} {_num(self.min)}{u}"
+        if self.max is not None:
+            return f"{le} {_num(self.max)}{u}"
+        return "any"
+
+
+def _num(x: float) -> str:
+    """Shortest faithful text for a limit number (limits are typed by people: 40, 0.5)."""
+    return f"{x:g}" if abs(x) < 1e6 else f"{x:.6g}"
+
+
+@dataclass(frozen=True)
+class Rule:
+    """One limit: where a measurement passes and where it only warns, for some modes."""
+
+    measurement: str
+    """Stable measurement key, e.g. ``"carrier_suppression_db"``."""
+    pass_bound: Bound
+    """Values inside pass."""
+    warn_bound: Bound | None = None
+    """Values inside (but outside ``pass_bound``) warn; outside fail. None: fail at once."""
+    modes: tuple[str, ...] = ()
+    """Modes the rule applies to; empty = every mode."""
+    unit: str = ""
+    """Unit the limits are written in; must match the measurement's unit when given."""
+    source: str = ""
+    """Where the numbers come from (regulation, recommendation, common practice)."""
+    advice: str = ""
+    """What a builder can do when the verdict is warn or fail (empty: the built-in advice)."""
+    index: int = 0
+    """1-based position of the rule in its file, for messages."""
+
+    def applies_to(self, mode: str) -> bool:
+        return not self.modes or mode in self.modes
+
+    @property
+    def effective_warn(self) -> Bound:
+        """The warn region including the pass region (the pass region when no warn)."""
+        return self.warn_bound if self.warn_bound is not None else self.pass_bound
+
+    def describe(self, ascii_only: bool = True) -> str:
+        """``"pass >= 40 dB, warn >= 30 dB"``: the ``limit`` text of a verdict."""
+        text = f"pass {self.pass_bound.describe(self.unit, ascii_only)}"
+        if self.warn_bound is not None:
+            text += f", warn {self.warn_bound.describe(self.unit, ascii_only)}"
+        return text
+
+    def to_json(self) -> dict[str, Any]:
+        out: dict[str, Any] = {"measurement": self.measurement}
+        if self.modes:
+            out["modes"] = list(self.modes)
+        out["pass"] = self.pass_bound.to_json()
+        if self.warn_bound is not None:
+            out["warn"] = self.warn_bound.to_json()
+        for key in ("unit", "source", "advice"):
+            if getattr(self, key):
+                out[key] = getattr(self, key)
+        return out
+
+
+@dataclass(frozen=True)
+class LimitsProfile:
+    """A named set of rules, from a preset or a user's file."""
+
+    name: str
+    """Profile name (a preset's name, or the file's ``name`` key or stem)."""
+    description: str
+    """One or two sentences saying what the profile is for."""
+    rules: tuple[Rule, ...]
+    """Rules in file order."""
+    source: str = ""
+    """Profile-wide source note."""
+    path: str | None = None
+    """The file it was read from (None for a preset)."""
+    preset: bool = False
+    """True for a profile shipped with iqscope."""
+
+    @property
+    def origin(self) -> str:
+        """``"preset"`` or the file path: where the profile came from, for headers."""
+        return "preset" if self.preset else (self.path or "")
+
+    def rule_for(self, measurement: str, mode: str) -> Rule | None:
+        """The rule governing ``measurement`` in ``mode``: a mode-specific rule wins."""
+        specific = [r for r in self.rules if r.measurement == measurement and mode in r.modes]
+        if specific:
+            return specific[0]
+        generic = [r for r in self.rules if r.measurement == measurement and not r.modes]
+        return generic[0] if generic else None
+
+    def rules_for_mode(self, mode: str) -> tuple[Rule, ...]:
+        """The governing rule of each measurement for ``mode``, in file order."""
+        seen: dict[str, Rule] = {}
+        for r in self.rules:
+            if r.measurement in seen:
+                continue
+            rule = self.rule_for(r.measurement, mode)
+            if rule is not None:
+                seen[r.measurement] = rule
+        return tuple(seen.values())
+
+    def to_json(self) -> dict[str, Any]:
+        return {
+            "name": self.name,
+            "description": self.description,
+            "origin": self.origin,
+            "rules": [r.to_json() for r in self.rules],
+        }
+
+
+# -- presets ------------------------------------------------------------------------
+
+
+def _preset_dir() -> Any:
+    return resources.files("iqscope.grading").joinpath("presets")
+
+
+def preset_names() -> tuple[str, ...]:
+    """Names of the shipped presets, sorted."""
+    names = [p.name[: -len(".toml")] for p in _preset_dir().iterdir() if p.name.endswith(".toml")]
+    return tuple(sorted(names))
+
+
+def preset_text(name: str) -> str:
+    """The TOML text of a shipped preset (comments included), for ``limits init``."""
+    if name not in preset_names():
+        raise LimitsError(_unknown_preset_message(name))
+    return str(_preset_dir().joinpath(f"{name}.toml").read_text(encoding="utf-8"))
+
+
+def _unknown_preset_message(name: str) -> str:
+    names = preset_names()
+    hint = difflib.get_close_matches(name, names, n=1)
+    did = f" (did you mean {hint[0]!r}?)" if hint else ""
+    return f"no limits file or preset named {name!r}{did}; presets: {', '.join(names)}"
+
+
+def default_profile_name(mode: str) -> str:
+    """The preset used for ``mode`` when no ``--limits`` is given."""
+    return DEFAULT_PRESET_BY_MODE.get(mode, "home-built")
+
+
+def default_profile(mode: str) -> LimitsProfile:
+    """The default profile for a resolved mode."""
+    return load_limits(default_profile_name(mode))
+
+
+def load_limits(spec: str | os.PathLike[str]) -> LimitsProfile:
+    """Load a limits profile from a file path or a preset name.
+
+    Parameters
+    ----------
+    spec : str or path
+        A path to a TOML file (anything that exists, or ends in ``.toml``, or contains
+        a path separator), else the name of a shipped preset (see :func:`preset_names`).
+
+    Raises
+    ------
+    LimitsError
+        The file cannot be read, is not valid TOML, breaks the schema, or the preset
+        does not exist. The message names the file and the key.
+    """
+    text_spec = os.fspath(spec)
+    path = Path(text_spec)
+    looks_like_path = (
+        path.exists() or text_spec.endswith(".toml") or os.sep in text_spec or "/" in text_spec
+    )
+    if not looks_like_path:
+        if text_spec not in preset_names():
+            raise LimitsError(_unknown_preset_message(text_spec))
+        return parse_limits(preset_text(text_spec), origin=None, default_name=text_spec)
+    try:
+        data = path.read_bytes()
+    except FileNotFoundError:
+        raise LimitsError("limits file not found", path) from None
+    except IsADirectoryError:
+        raise LimitsError("limits path is a folder, not a file", path) from None
+    except OSError as exc:
+        raise LimitsError(f"cannot read limits file: {exc.strerror or exc}", path) from None
+    try:
+        text = data.decode("utf-8")
+    except UnicodeDecodeError:
+        raise LimitsError("limits file is not UTF-8 text", path) from None
+    return parse_limits(text, origin=str(path), default_name=path.stem)
+
+
+def parse_limits(text: str, origin: str | None = None, default_name: str = "limits") -> LimitsProfile:
+    """Parse profile TOML text; ``origin`` is the file path (None for a preset).
+
+    Raises
+    ------
+    LimitsError
+        Invalid TOML or schema; the message names ``origin`` and the key.
+    """
+    where = origin
+    try:
+        doc = tomllib.loads(text)
+    except tomllib.TOMLDecodeError as exc:
+        raise LimitsError(f"not valid TOML: {exc}", where) from None
+
+    _check_keys(doc, _TOP_KEYS, "", where)
+    schema = doc.get("schema", LIMITS_SCHEMA)
+    if schema != LIMITS_SCHEMA:
+        raise LimitsError(f"key 'schema': expected {LIMITS_SCHEMA!r}, found {schema!r}", where)
+    name = _string(doc, "name", "", where) or default_name
+    description = _string(doc, "description", "", where)
+    source = _string(doc, "source", "", where)
+    raw_rules = doc.get("rule", [])
+    if not isinstance(raw_rules, list) or not all(isinstance(r, dict) for r in raw_rules):
+        raise LimitsError("key 'rule': write each rule as a [[rule]] table", where)
+    if not raw_rules:
+        raise LimitsError("no [[rule]] tables: a profile needs at least one rule", where)
+    rules = tuple(_parse_rule(r, i + 1, where) for i, r in enumerate(raw_rules))
+    _check_overlaps(rules, where)
+    return LimitsProfile(
+        name=name,
+        description=description,
+        rules=rules,
+        source=source,
+        path=origin,
+        preset=origin is None,
+    )
+
+
+def _check_keys(table: Mapping[str, Any], allowed: Sequence[str], prefix: str, where: str | None) -> None:
+    for key in table:
+        if key not in allowed:
+            hint = difflib.get_close_matches(key, allowed, n=1)
+            did = f" (did you mean {hint[0]!r}?)" if hint else ""
+            raise LimitsError(
+                f"unknown key {prefix + key!r}{did}; allowed: {', '.join(allowed)}", where
+            )
+
+
+def _string(table: Mapping[str, Any], key: str, prefix: str, where: str | None) -> str:
+    value = table.get(key, "")
+    if not isinstance(value, str):
+        raise LimitsError(f"key {prefix + key!r} must be a string, found {value!r}", where)
+    return value
+
+
+def _parse_rule(raw: Mapping[str, Any], index: int, where: str | None) -> Rule:
+    measurement = raw.get("measurement")
+    label = f"rule {index}"
+    if not isinstance(measurement, str) or not measurement:
+        raise LimitsError(f"{label}: key 'measurement' is missing or not a string", where)
+    prefix = f"rule {index} ({measurement}): "
+    for key in raw:
+        if key not in _RULE_KEYS:
+            hint = difflib.get_close_matches(key, _RULE_KEYS, n=1)
+            did = f" (did you mean {hint[0]!r}?)" if hint else ""
+            raise LimitsError(f"{prefix}unknown key {key!r}{did}", where)
+    modes_raw = raw.get("modes", [])
+    if isinstance(modes_raw, str):
+        modes_raw = [modes_raw]
+    if not isinstance(modes_raw, list) or not all(isinstance(m, str) for m in modes_raw):
+        raise LimitsError(f"{prefix}key 'modes' must be a list of mode names", where)
+    for m in modes_raw:
+        if m not in MODES:
+            raise LimitsError(f"{prefix}key 'modes': unknown mode {m!r}; modes: {', '.join(MODES)}", where)
+    if "pass" not in raw:
+        raise LimitsError(f"{prefix}key 'pass' is missing (e.g. pass = {{ min = 40 }})", where)
+    pass_bound = _parse_bound(raw["pass"], prefix, "pass", where)
+    warn_bound = None
+    if "warn" in raw:
+        warn_bound = _parse_bound(raw["warn"], prefix, "warn", where)
+        if not warn_bound.covers(pass_bound):
+            raise LimitsError(
+                f"{prefix}key 'warn' must be looser than 'pass' (every passing value must "
+                f"also lie inside warn): pass {pass_bound.describe()}, warn {warn_bound.describe()}",
+                where,
+            )
+    texts = {k: _string(raw, k, prefix, where) for k in ("unit", "source", "advice")}
+    return Rule(
+        measurement=measurement,
+        pass_bound=pass_bound,
+        warn_bound=warn_bound,
+        modes=tuple(modes_raw),
+        unit=texts["unit"],
+        source=texts["source"],
+        advice=texts["advice"],
+        index=index,
+    )
+
+
+def _parse_bound(raw: Any, prefix: str, key: str, where: str | None) -> Bound:
+    if not isinstance(raw, dict):
+        raise LimitsError(f"{prefix}key {key!r} must be a table such as {{ min = 40 }}", where)
+    for k in raw:
+        if k not in _BOUND_KEYS:
+            raise LimitsError(f"{prefix}unknown key '{key}.{k}'; use min and/or max", where)
+    if not raw:
+        raise LimitsError(f"{prefix}key {key!r} needs min and/or max", where)
+    ends: dict[str, float | None] = {}
+    for k in _BOUND_KEYS:
+        v = raw.get(k)
+        if v is None:
+            ends[k] = None
+            continue
+        if isinstance(v, bool) or not isinstance(v, (int, float)) or not math.isfinite(v):
+            raise LimitsError(f"{prefix}key '{key}.{k}' must be a finite number, found {v!r}", where)
+        ends[k] = float(v)
+    lo, hi = ends["min"], ends["max"]
+    if lo is not None and hi is not None and lo > hi:
+        raise LimitsError(f"{prefix}key {key!r}: min {lo:g} is above max {hi:g}", where)
+    return Bound(lo, hi)
+
+
+def _check_overlaps(rules: Sequence[Rule], where: str | None) -> None:
+    """Two rules of equal specificity for the same measurement and mode are ambiguous."""
+    claimed: dict[tuple[str, str], int] = {}
+    for r in rules:
+        for m in r.modes or ("*",):
+            key = (r.measurement, m)
+            if key in claimed:
+                scope = "every mode" if m == "*" else f"mode {m!r}"
+                raise LimitsError(
+                    f"rules {claimed[key]} and {r.index} both set {r.measurement!r} for {scope}",
+                    where,
+                )
+            claimed[key] = r.index
