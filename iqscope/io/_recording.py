@@ -4,6 +4,10 @@ A recording is a sequence of complex baseband samples with the facts needed to p
 them on a frequency axis: sample rate, centre frequency (if known), capture segments
 and annotations. Samples are read on demand as complex64 blocks scaled so that
 ``|x| = 1`` is full scale (0 dBFS); nothing loads a whole file.
+
+Non-finite samples (NaN or Inf in a float file) are never handed on: :meth:`Recording.read`
+replaces each such sample by 0 and counts it (:attr:`Recording.nonfinite_count`); once a
+read has met one, :attr:`Recording.warnings` says how many were replaced so far.
 """
 
 from __future__ import annotations
@@ -94,6 +98,10 @@ class Recording:
         annotations: annotations carried by the file.
     """
 
+    _warnings: tuple[str, ...] = ()
+    _nonfinite: int = 0
+    _nonfinite_until: int = 0
+
     def __init__(
         self,
         *,
@@ -125,7 +133,46 @@ class Recording:
         self.segments = segments or (Segment(0, center_frequency_hz),)
         self.annotations = annotations
         #: Soft problems found while opening (e.g. a trailing partial sample ignored).
-        self.warnings: tuple[str, ...] = warnings
+        self.warnings = warnings
+
+    @property
+    def warnings(self) -> tuple[str, ...]:
+        """Soft problems, one sentence each: found while opening (a trailing partial sample
+        ignored, a data chunk shorter than its header says ...) and, once a read met them,
+        the number of non-finite samples replaced by 0."""
+        if self._nonfinite:
+            return (
+                *self._warnings,
+                f"{self._nonfinite} non-finite sample(s) (NaN/Inf) replaced by 0 in the samples read so far",
+            )
+        return self._warnings
+
+    @warnings.setter
+    def warnings(self, value: tuple[str, ...]) -> None:
+        self._warnings = tuple(value)
+
+    @property
+    def clip_level(self) -> float:
+        """Component magnitude (full scale 1) at or above which a sample counts as clipped.
+
+        For integer datatypes the largest positive code scaled (32767/32768 for ``ci16``);
+        for float datatypes 1.0. See :attr:`iqscope.io.SampleFormat.clip_level`.
+        """
+        from ._formats import parse_datatype
+
+        try:
+            return parse_datatype(self.datatype).clip_level
+        except ValueError:
+            return 1.0
+
+    @property
+    def nonfinite_count(self) -> int:
+        """Non-finite samples met (and replaced by 0) in the samples read so far.
+
+        Counted once per sample when the recording is read front to back (as
+        :meth:`chunks` does, overlaps included); exact after one full pass.
+        """
+        return self._nonfinite
 
     # -- facts -----------------------------------------------------------------------
     @property
@@ -154,7 +201,8 @@ class Recording:
         """Read ``count`` samples from ``start`` as complex64 scaled to full scale 1.
 
         ``count=None`` reads to the end (mind the memory on a large file). Reads past the
-        end are shortened; a negative start or count raises ``ValueError``.
+        end are shortened; a negative start or count raises ``ValueError``. NaN/Inf samples
+        come back as 0 and are counted in :attr:`nonfinite_count`.
         """
         if start < 0:
             raise ValueError(f"{start=} must be >= 0")
@@ -166,6 +214,17 @@ class Recording:
         if start >= stop:
             return np.zeros(0, np.complex64)
         out = np.asarray(self._read(start, stop - start), dtype=np.complex64)
+        if self.datatype.startswith("cf"):
+            bad = ~np.isfinite(out)
+            if bad.any():
+                # count each bad sample once on a front-to-back pass (overlaps not re-counted)
+                lo = max(start, self._nonfinite_until) - start
+                if start <= self._nonfinite_until:
+                    self._nonfinite += int(np.count_nonzero(bad[lo:]))
+                    self._nonfinite_until = max(self._nonfinite_until, stop)
+                out = np.where(bad, np.complex64(0), out)
+            elif start <= self._nonfinite_until:
+                self._nonfinite_until = max(self._nonfinite_until, stop)
         return out
 
     def chunks(
