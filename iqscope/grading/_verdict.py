@@ -268,20 +268,21 @@ def _absent(rule: Rule, mode: str, present: Mapping[str, Measurement]) -> Verdic
     )
 
 
-def _region_status(lo: float | None, hi: float | None, rule: Rule) -> tuple[Status, bool]:
+def _region_status(lo: float | None, hi: float | None, rule: Rule) -> tuple[Status, str]:
     """Judge the set of possible true values [lo, hi] (None = unbounded).
 
-    Returns the status and whether the data left it undecided.
+    Returns the status and what the data left undecided: "" (decided), "pass" (pass or
+    worse cannot be told apart) or "fail" (certainly not a pass; warn or fail undecided).
     """
     possible = Bound(lo, hi)
     if rule.pass_bound.covers(possible):
-        return "pass", False
+        return "pass", ""
     warn = rule.effective_warn
     if _disjoint(possible, warn):
-        return "fail", False
-    if warn.covers(possible) and _disjoint(possible, rule.pass_bound):
-        return "warn", False
-    return "warn", True
+        return "fail", ""
+    if _disjoint(possible, rule.pass_bound):
+        return "warn", "" if warn.covers(possible) else "fail"
+    return "warn", "pass"
 
 
 def _disjoint(a: Bound, b: Bound) -> bool:
@@ -323,6 +324,14 @@ def _judge(name: str, m: Measurement, rule: Rule, mode: str) -> Verdict:
     if m.limited_by_noise:
         lo, hi = (v, None) if m.bound == "lower" else (None, v)
         status, undecided = _region_status(lo, hi, rule)
+        if undecided == "fail":
+            return Verdict(
+                status="warn",
+                reason="noise-limited bound: outside the pass limit; warn or fail cannot be told apart",
+                advice=advice,
+                inconclusive=True,
+                **base,
+            )
         if undecided:
             return Verdict(
                 status="warn",
