@@ -49,6 +49,7 @@ __all__ = [
     "product_offsets_hz",
     "third_order_intercept",
     "line_half_width_hz",
+    "effective_averages",
     "local_noise_psd",
     "line_level",
     "find_lines",
@@ -161,6 +162,18 @@ class LineLevel:
         return math.hypot(rel, SYSTEMATIC_DB)
 
 
+def effective_averages(spectrum: Spectrum) -> float:
+    """Independent-equivalent number of averages of ``spectrum`` (at least 1).
+
+    Uses ``dof_averages`` of an averaged spectrum that knows its overlap (Welch 1967;
+    Percival and Walden 1993, eq. 292b), else the raw count ``n_averages``.
+    """
+    k = getattr(spectrum, "dof_averages", None)
+    if isinstance(k, (int, float)) and k > 0:
+        return max(1.0, float(k))
+    return max(1.0, float(spectrum.n_averages))
+
+
 def line_half_width_hz(spectrum: Spectrum) -> float:
     """Half width of the band a line's power is integrated over, Hz.
 
@@ -196,7 +209,7 @@ def local_noise_psd(
     if np.count_nonzero(sel) < 8:
         return global_noise_psd
     med = float(np.median(spectrum.psd[sel]))
-    nu = 2.0 * max(1, spectrum.n_averages)
+    nu = 2.0 * effective_averages(spectrum)
     bias = math.log(2.0) if nu <= 2 else (1.0 - 2.0 / (9.0 * nu)) ** 3
     return max(global_noise_psd, med / bias)
 
@@ -237,7 +250,7 @@ def line_level(spectrum: Spectrum, freq_hz: float, noise_psd: float) -> LineLeve
     b = spectrum.bin_hz
     total = float(np.sum(spectrum.psd[sel])) * b
     power = total - noise_psd * n * b
-    k = max(1, spectrum.n_averages)
+    k = effective_averages(spectrum)
     corr = max(1.0, spectrum.enbw_hz / b)
     sigma_noise = noise_psd * b * math.sqrt(n * corr / k)
     sigma = math.sqrt(sigma_noise**2 + 2.0 * max(power, 0.0) * noise_psd * spectrum.enbw_hz / k)

@@ -28,6 +28,7 @@ References
 from __future__ import annotations
 
 import math
+import os
 from collections.abc import Mapping
 from dataclasses import dataclass
 from typing import Any, Final, Literal
@@ -39,7 +40,7 @@ from ..dsp._types import Spectrum
 from ._context import AnalysisContext, FigureSet
 from ._result import Artefact, Measurement, failed
 from .designator import occupied_bandwidth_from_spectrum
-from .imd import line_half_width_hz, line_level, local_noise_psd
+from .imd import effective_averages, line_half_width_hz, line_level, local_noise_psd
 
 __all__ = [
     "Domain",
@@ -189,7 +190,7 @@ def find_spurs(
     kernel = np.ones(n_int)
     integrated = np.convolve(spectrum.psd, kernel, mode="same") * b
     corr = max(1.0, spectrum.enbw_hz / b)
-    k = max(1, spectrum.n_averages)
+    k = effective_averages(spectrum)
     dof = 2.0 * k * n_int / corr
     outside = np.abs(f - centre) > bn / 2 + h
     # Bins near the recording's edges see the anti-alias filter roll-off: skip them.
@@ -284,6 +285,10 @@ def _calibration_offset(ctx: AnalysisContext) -> float | None:
         return None
     if isinstance(cal, (int, float)):
         return float(cal)
+    if isinstance(cal, (str, os.PathLike)):
+        from .power import load_calibration  # same layer; loaded only when asked for
+
+        cal = load_calibration(cal)
     for attr in ("dbfs_to_dbm_db", "offset_db", "dbm_per_dbfs_offset"):
         v = getattr(cal, attr, None)
         if isinstance(v, (int, float)):
