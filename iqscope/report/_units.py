@@ -1,0 +1,239 @@
+"""Number formatting for reports: pure functions from numbers to short strings.
+
+The digits shown follow the uncertainty: it is rounded to one significant digit (two
+when the leading digit is 1), and the value to the same decimal place (GUM, JCGM
+100:2008 section 7.2.6). Without an uncertainty a modest default precision per unit is
+used. A noise-limited bound is rounded *outwards* (a lower bound down, an upper bound
+up) so that the printed bound is still true, and shown as ``">= 62 dB (noise-limited)"``.
+
+Frequencies in Hz are scaled to Hz / kHz / MHz / GHz by their size.
+
+References
+----------
+.. [1] JCGM 100:2008, "Evaluation of measurement data - Guide to the expression of
+   uncertainty in measurement" (GUM), section 7.2.6 (number of significant digits).
+"""
+
+from __future__ import annotations
+
+import math
+from typing import Final
+
+__all__ = [
+    "format_value",
+    "format_measurement",
+    "format_frequency",
+    "format_bound",
+    "format_limit",
+    "format_duration",
+    "format_count",
+    "format_rate",
+    "ge_le",
+]
+
+_LOG_UNITS: Final = frozenset({"dB", "dBc", "dBFS", "dBFS/Hz", "dBm", "dB PEP", "dBc/Hz"})
+_MAX_DECIMALS: Final = {"dB": 2, "Hz": 3, "1": 4, "Hz/min": 3, "Hz/s": 4, "s": 3, "ppm": 4}
+_DEFAULT_DECIMALS: Final = {"dB": 1, "1": 3, "Hz/min": 2, "Hz/s": 3, "s": 1, "ppm": 3}
+_SI: Final = ((1e9, "G"), (1e6, "M"), (1e3, "k"), (1.0, ""))
+
+
+def ge_le(ascii_only: bool = False) -> tuple[str, str, str]:
+    """The >=, <= and +/- signs, in Unicode or ASCII."""
+    return (">=", "<=", "+/-") if ascii_only else ("\u2265", "\u2264", "\u00b1")
+
+
+def _family(unit: str) -> str:
+    return "dB" if unit in _LOG_UNITS else unit
+
+
+def _fixed(x: float, decimals: int) -> str:
+    text = f"{x:.{max(decimals, 0)}f}"
+    if float(text) == 0.0:
+        text = text.lstrip("-")
+    return text
+
+
+def _uncertainty_decimals(u: float) -> int:
+    """Decimal places that show ``u`` with 1 significant digit (2 when it starts with 1)."""
+    exponent = math.floor(math.log10(u))
+    leading = int(u / 10**exponent + 1e-9)
+    sig = 2 if leading == 1 else 1
+    return -exponent + sig - 1
+
+
+def _si_scale(unit: str, magnitude: float) -> tuple[float, str]:
+    if unit != "Hz":
+        return 1.0, unit
+    for factor, prefix in _SI:
+        if magnitude >= factor:
+            return factor, f"{prefix}Hz"
+    return 1.0, "Hz"
+
+
+def _suffix(unit: str) -> str:
+    return "" if unit in ("", "1") else f" {unit}"
+
+
+def format_value(
+    value: float | None,
+    unit: str,
+    uncertainty: float | None = None,
+    *,
+    ascii_only: bool = False,
+) -> str:
+    """``"37.6 ± 0.2 dB"``, ``"2.100 ± 0.015 kHz"``, ``"0.63"`` or ``"not measured"``.
+
+    Parameters
+    ----------
+    value : float or None
+        The value in ``unit`` (None: not measured).
+    unit : str
+        Unit symbol; ``"Hz"`` is scaled to kHz / MHz, ``"1"`` prints no unit.
+    uncertainty : float, optional
+        1-sigma uncertainty in ``unit``; sets the digits shown.
+    """
+    if value is None or not math.isfinite(value):
+        return "not measured"
+    _, _, pm = ge_le(ascii_only)
+    family = _family(unit)
+    u = uncertainty if uncertainty is not None and math.isfinite(uncertainty) and uncertainty > 0 else None
+    factor, shown_unit = _si_scale(unit, abs(value) if value != 0 else (u or 0.0))
+    v = value / factor
+    max_dec = _MAX_DECIMALS.get(family, 3) + (round(math.log10(factor)) if unit == "Hz" else 0)
+    if u is None:
+        if unit == "Hz":
+            dec = 0 if factor == 1.0 else min(max_dec, 3)
+        else:
+            dec = _DEFAULT_DECIMALS.get(family, 3)
+        return f"{_fixed(v, dec)}{_suffix(shown_unit)}"
+    dec = _uncertainty_decimals(u / factor)
+    while unit == "Hz" and factor > 1.0 and dec > 3:
+        # A small uncertainty on a large frequency: step down a prefix (kHz -> Hz).
+        factor /= 1e3
+        shown_unit = {1e6: "MHz", 1e3: "kHz", 1.0: "Hz"}[factor]
+        max_dec -= 3
+        dec = _uncertainty_decimals(u / factor)
+    v = value / factor
+    us = u / factor
+    if dec > max_dec:
+        dec = max_dec
+        tiny = 10.0**-dec
+        if round(us, dec) < tiny:
+            return f"{_fixed(v, dec)} {pm} <{_fixed(tiny, dec)}{_suffix(shown_unit)}"
+    return f"{_fixed(v, dec)} {pm} {_fixed(us, dec)}{_suffix(shown_unit)}"
+
+
+def format_bound(value: float, unit: str, bound: str | None, *, ascii_only: bool = False) -> str:
+    """A noise-limited bound, rounded outwards: ``"≥ 62 dB (noise-limited)"``."""
+    ge, le, _ = ge_le(ascii_only)
+    factor, shown_unit = _si_scale(unit, abs(value))
+    v = value / factor
+    family = _family(unit)
+    if family == "dB":
+        dec = 0
+    elif unit == "Hz":
+        dec = 0 if factor == 1.0 else 2
+    else:
+        dec = _DEFAULT_DECIMALS.get(family, 2)
+    scale = 10.0**dec
+    if bound == "upper":
+        v = math.ceil(v * scale - 1e-9) / scale
+        sign = le
+    else:
+        v = math.floor(v * scale + 1e-9) / scale
+        sign = ge
+    return f"{sign} {_fixed(v, dec)}{_suffix(shown_unit)} (noise-limited)"
+
+
+def format_measurement(
+    name: str,
+    value: float | None,
+    unit: str,
+    uncertainty: float | None = None,
+    *,
+    limited_by_noise: bool = False,
+    bound: str | None = None,
+    ascii_only: bool = False,
+) -> str:
+    """Format one measurement for a table cell (fractions in per cent)."""
+    if value is None or not math.isfinite(value):
+        return "not measured"
+    if limited_by_noise:
+        return format_bound(value, unit, bound, ascii_only=ascii_only)
+    if name.endswith("_fraction") and unit == "1":
+        if value == 0.0 and not uncertainty:
+            return "0 %"
+        pct = value * 100.0
+        u = None if uncertainty is None else uncertainty * 100.0
+        if u is None and pct != 0.0:
+            return f"{pct:.2g} %"
+        return format_value(pct, "%", u, ascii_only=ascii_only)
+    return format_value(value, unit, uncertainty, ascii_only=ascii_only)
+
+
+def format_frequency(hz: float | None, resolution_hz: float = 1.0) -> str:
+    """``14103210`` -> ``"14.103210 MHz"``, ``3210`` -> ``"3.210 kHz"``, ``850`` -> ``"850 Hz"``.
+
+    The digits show ``resolution_hz`` (default 1 Hz).
+    """
+    if hz is None or not math.isfinite(hz):
+        return "unknown"
+    factor, unit = _si_scale("Hz", abs(hz))
+    dec = max(0, math.ceil(math.log10(factor / resolution_hz) - 1e-9)) if resolution_hz > 0 else 0
+    return f"{_fixed(hz / factor, dec)} {unit}"
+
+
+def _limit_number(x: float, unit: str) -> str:
+    factor, shown = _si_scale(unit, abs(x))
+    return f"{x / factor:g}{_suffix(shown)}"
+
+
+def format_limit(
+    pass_min: float | None,
+    pass_max: float | None,
+    warn_min: float | None = None,
+    warn_max: float | None = None,
+    unit: str = "",
+    *,
+    ascii_only: bool = False,
+) -> str:
+    """``"≥ 40 dB (warn ≥ 30 dB)"``, ``"≤ 3 kHz (warn ≤ 3.5 kHz)"``, ``"-1 .. 1 dB"``."""
+    ge, le, _ = ge_le(ascii_only)
+
+    def one(lo: float | None, hi: float | None) -> str:
+        if lo is not None and hi is not None:
+            lo_text = f"{lo:g}" if unit != "Hz" else _limit_number(lo, unit)
+            return f"{lo_text} .. {_limit_number(hi, unit)}"
+        if lo is not None:
+            return f"{ge} {_limit_number(lo, unit)}"
+        if hi is not None:
+            return f"{le} {_limit_number(hi, unit)}"
+        return "any"
+
+    text = one(pass_min, pass_max)
+    if warn_min is not None or warn_max is not None:
+        text += f" (warn {one(warn_min, warn_max)})"
+    return text
+
+
+def format_duration(seconds: float) -> str:
+    """``9.87`` -> ``"9.87 s"``, ``125`` -> ``"2 min 05 s"``, ``3725`` -> ``"1 h 02 min"``."""
+    if not math.isfinite(seconds) or seconds < 0:
+        return "unknown"
+    if seconds < 60:
+        return f"{seconds:.3g} s"
+    total = round(seconds)
+    if total < 3600:
+        return f"{total // 60} min {total % 60:02d} s"
+    return f"{total // 3600} h {(total % 3600) // 60:02d} min"
+
+
+def format_count(n: int) -> str:
+    """``480000`` -> ``"480 000"`` (groups of three, a space between)."""
+    return f"{n:,}".replace(",", " ")
+
+
+def format_rate(hz: float) -> str:
+    """Sample rate: ``48000`` -> ``"48 kS/s"``, ``2.4e6`` -> ``"2.4 MS/s"``."""
+    factor, unit = _si_scale("Hz", abs(hz))
+    return f"{hz / factor:.6g} {unit[:-2]}S/s"
