@@ -75,8 +75,9 @@ class ToneEstimate:
     n_samples: int
     """Block length N."""
     detected: bool
-    """True when the peak stands clear of the noise: N*SNR exceeds ln(M) + 7, the level
-    a pure-noise maximum over the M searched bins passes with probability ~1e-3, and 15."""
+    """True when the peak stands clear of the noise: N*SNR exceeds both 20 and ln(M) + 12,
+    the level the largest of M searched pure-noise bins (exponential, mean 1) passes with
+    probability M exp(-t) ~ 6e-6."""
 
     @property
     def snr_db(self) -> float:
@@ -343,7 +344,7 @@ def estimate_tones(
         noise = max(noise, 1e-300)
         snr = amp**2 / noise
         sigma = crlb_frequency_std(n, snr, fs) * (1.0 if taper is None else _HANN_LOSS)
-        threshold = max(15.0, math.log(n_searched) + 7.0)
+        threshold = max(20.0, math.log(n_searched) + 12.0)
         out.append(
             ToneEstimate(
                 frequency_hz=f,

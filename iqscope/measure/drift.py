@@ -1,0 +1,1208 @@
+"""Frequency drift and stability: follow a reference line block by block, then figure.
+
+The *reference line* is the line whose frequency stands for the transmitter's:
+
+- CW, AM, or a DSB/SSB signal with a carrier leak: the carrier;
+- SSB with a test tone: the tone (carrier = tone line -/+ the tone's audio frequency);
+- DSB (or a two-tone test) with tones: both sideband lines are followed and averaged,
+  which cancels the audio oscillator's own drift (for DSB the mean is the carrier).
+
+It is chosen automatically from an averaged spectrum (:func:`plan_lines`) and can be set.
+The recording is streamed in contiguous blocks of ``block_s`` seconds (memory bounded by
+one block); in each block the line is measured with the single-tone estimator of
+:mod:`iqscope.dsp._tone`, searching only ``+/- span_hz`` around where it was last seen,
+so it is followed as it moves. :func:`drift_measurements` turns the track into figures
+(see ``docs/drift.md`` for the exact definitions):
+
+``frequency_offset_hz``, ``drift_hz_per_min``, ``drift_peak_to_peak_hz``,
+``drift_worst_window_hz``, ``warmup_settling_s`` and ``allan_deviation``.
+
+With a *stable line* (``--reference``: a standard-frequency transmission or a disciplined
+marker received in the same capture) the stable line is followed too and the drift is
+reported relative to it, which removes the receiver's own oscillator drift. Without it,
+every figure includes the receiver's drift.
+
+References
+----------
+.. [1] D. C. Rife and R. R. Boorstyn, IEEE Trans. Inf. Theory IT-20(5):591-598, 1974
+   (single-tone estimation and its Cramér–Rao bound).
+.. [2] W. J. Riley, *Handbook of Frequency Stability Analysis*, NIST SP 1065, 2008
+   (overlapping Allan deviation, eq. 11).
+"""
+
+from __future__ import annotations
+
+import math
+from collections import deque
+from collections.abc import Mapping, Sequence
+from dataclasses import dataclass, field, replace
+from typing import Any
+
+import numpy as np
+import numpy.typing as npt
+from scipy import fft as sp_fft
+from scipy import special
+from scipy.signal import windows
+
+from ..dsp._allan import AllanResult, oadev
+from ..dsp._tone import LinePeak, ToneEstimate, Window, estimate_tones, find_lines
+from ..dsp._types import Spectrum
+from ..errors import MeasurementError, UsageError
+from ..io._recording import Recording
+from ._analysis import Trace
+from ._context import AnalysisContext, FigureSet, ProgressFn
+from ._result import Measurement, failed
+
+__all__ = [
+    "LinePlan",
+    "BlockEstimate",
+    "FrequencyTrack",
+    "DriftResult",
+    "LineTracker",
+    "survey_spectrum",
+    "plan_lines",
+    "choose_block_s",
+    "default_span_hz",
+    "track_frequency",
+    "drift_measurements",
+    "analyse_drift",
+    "drift_figures",
+    "resolve_frequency",
+    "DEFAULT_WINDOW_S",
+    "DEFAULT_SETTLE_BAND_HZ",
+]
+
+#: Default window for the worst excursion, s (a beacon transmission is ~2 minutes).
+DEFAULT_WINDOW_S = 120.0
+#: Default half-width of the settling band, Hz (widened to 5 sigma of one block if needed).
+DEFAULT_SETTLE_BAND_HZ = 1.0
+#: Per-block 1-sigma the automatic block length aims at, Hz.
+TARGET_SIGMA_HZ = 0.02
+#: Post-integration SNR (N * SNR, linear) a block must reach to follow the line reliably.
+MIN_BLOCK_SNR = 60.0
+#: Fewest blocks a track must have to give figures.
+MIN_BLOCKS = 8
+#: Candidate block lengths, s (octaves, so ADEV taus are round numbers).
+_BLOCK_CHOICES = tuple(2.0**k for k in range(-7, 4))  # 1/128 s .. 8 s
+#: ADEV is quoted at the octave tau nearest this, s.
+ADEV_QUOTE_TAU_S = 10.0
+
+
+# --------------------------------------------------------------------------------------
+# Line plan
+# --------------------------------------------------------------------------------------
+@dataclass(frozen=True)
+class LinePlan:
+    """Which line(s) to follow and how they relate to the carrier."""
+
+    lines_hz: tuple[float, ...]
+    """Starting frequency of each followed line, Hz offset from the capture centre. One
+    line, or two whose mean is the reference frequency (DSB sidebands, two tones)."""
+    carrier_shift_hz: float | None
+    """Carrier = mean(lines) - carrier_shift_hz. 0 when the mean is the carrier (CW, AM,
+    DSB pair, carrier leak), +/-tone for an SSB tone, None when the relation is unknown
+    (then the offset figure describes the line itself)."""
+    kind: str
+    """"carrier", "carrier leak", "tone", "sideband pair", "line pair" or "line"."""
+    description: str
+    """A sentence for reports: what is followed and why."""
+    snr: float = math.nan
+    """Per-sample SNR of the weakest followed line, from the survey spectrum (linear)."""
+    separation_hz: float = math.inf
+    """Distance from the followed line(s) to the nearest other line, Hz."""
+    neighbour_ratio: float = 0.0
+    """Largest amplitude ratio (other line / followed line) among the other lines,
+    weighted by 1/distance in Hz: sets whether the Hann taper is needed."""
+
+
+def resolve_frequency(
+    value_hz: float, sample_rate_hz: float, center_frequency_hz: float | None, what: str
+) -> tuple[float, bool]:
+    """Turn a user frequency into an offset from the capture centre.
+
+    A value within +/- fs/2 is an offset; a larger one is an absolute RF frequency
+    (DESIGN.md section 4, ``--carrier``). Returns ``(offset_hz, was_absolute)``.
+
+    Raises
+    ------
+    UsageError
+        An absolute frequency while the capture centre is unknown, or one outside the
+        captured band.
+    """
+    if not math.isfinite(value_hz):
+        raise UsageError(f"{what} {value_hz!r} is not a finite frequency")
+    if abs(value_hz) <= sample_rate_hz / 2:
+        return float(value_hz), False
+    if center_frequency_hz is None:
+        raise UsageError(
+            f"{what} {value_hz:g} Hz is outside +/- fs/2 so it must be an absolute frequency, "
+            "but the recording has no centre frequency (give it with --center)"
+        )
+    off = float(value_hz) - center_frequency_hz
+    if abs(off) > sample_rate_hz / 2:
+        raise UsageError(
+            f"{what} {value_hz:g} Hz lies outside the captured band "
+            f"({center_frequency_hz - sample_rate_hz / 2:.0f} .. "
+            f"{center_frequency_hz + sample_rate_hz / 2:.0f} Hz)"
+        )
+    return off, True
+
+
+def survey_spectrum(
+    recording: Recording,
+    *,
+    resolution_hz: float = 2.0,
+    max_segments: int = 32,
+) -> tuple[Spectrum, float]:
+    """Averaged PSD of up to ``max_segments`` segments spread over the recording.
+
+    Used to choose the line(s) to follow and the block length when no analysis spectrum
+    is at hand (``iqscope drift`` and ``watch``). Blackman–Harris window (-92 dB
+    sidelobes, Harris 1978), PSD scaled as ``|X|^2 / (fs sum w^2)`` (Heinzel 2002,
+    two-sided). Reads at most ``max_segments * nfft`` samples.
+
+    Returns
+    -------
+    (Spectrum, float)
+        The spectrum and the noise floor PSD (FS^2/Hz): the median bin corrected for the
+        median of an average of K exponentials (``gammaincinv(K, 0.5) / K``).
+    """
+    fs = recording.sample_rate_hz
+    n_total = recording.n_samples
+    if n_total < 64:
+        raise MeasurementError("the recording is too short to find a line (< 64 samples)", recording.path)
+    nfft = 1 << max(6, math.ceil(math.log2(fs / resolution_hz)))
+    nfft = min(nfft, 1 << 20)
+    while nfft > n_total and nfft > 64:
+        nfft //= 2
+    k = max(1, min(max_segments, n_total // nfft))
+    starts = np.linspace(0, n_total - nfft, k).astype(np.int64) if k > 1 else np.array([0])
+    win = windows.blackmanharris(nfft, sym=False)
+    s2 = float(np.sum(win**2))
+    acc = np.zeros(nfft)
+    for st in starts:
+        seg = recording.read(int(st), nfft).astype(np.complex128)
+        spec = sp_fft.fft(seg * win)
+        acc += spec.real**2 + spec.imag**2
+    psd = sp_fft.fftshift(acc / (k * fs * s2))
+    freqs = sp_fft.fftshift(sp_fft.fftfreq(nfft, 1.0 / fs))
+    spectrum = Spectrum(
+        freqs_hz=freqs,
+        psd=psd,
+        bin_hz=fs / nfft,
+        enbw_hz=fs * s2 / float(np.sum(win)) ** 2,
+        window="blackmanharris",
+        n_averages=int(k),
+        sample_rate_hz=fs,
+    )
+    median_factor = float(special.gammaincinv(k, 0.5)) / k
+    noise = float(np.median(psd)) / median_factor
+    return spectrum, max(noise, 1e-300)
+
+
+def _nearest(lines: Sequence[LinePeak], f: float, tol: float) -> LinePeak | None:
+    near = [ln for ln in lines if abs(ln.frequency_hz - f) <= tol]
+    return max(near, key=lambda ln: ln.power) if near else None
+
+
+def plan_lines(
+    spectrum: Spectrum,
+    noise_psd: float,
+    *,
+    mode: str | None = None,
+    carrier_offset_hz: float | None = None,
+    tone_hz: float | None = None,
+    line_hz: float | None = None,
+) -> LinePlan:
+    """Choose the line(s) to follow from an averaged spectrum.
+
+    Parameters
+    ----------
+    spectrum : Spectrum
+        Averaged PSD of the recording (FS^2/Hz).
+    noise_psd : float
+        Its noise floor, FS^2/Hz.
+    mode : str, optional
+        cw, am, dsb, usb, lsb or two-tone; None or "auto" picks from the lines seen.
+    carrier_offset_hz : float, optional
+        Where the carrier is (Hz offset), when known.
+    tone_hz : float, optional
+        SSB test tone's audio frequency, Hz.
+    line_hz : float, optional
+        Follow the line nearest this offset (overrides everything else).
+
+    Raises
+    ------
+    MeasurementError
+        No line stands at least 10 dB above the noise (nothing to follow).
+    """
+    fs = spectrum.sample_rate_hz
+    lines = find_lines(spectrum.freqs_hz, spectrum.psd, noise_psd, min_ratio_db=10.0, max_lines=24)
+    if not lines:
+        raise MeasurementError("no discrete line stands 10 dB above the noise: nothing to track")
+    tol = max(4 * spectrum.bin_hz, 5.0)
+    mode = None if mode in (None, "auto") else mode
+    strongest = lines[0]
+    chosen: list[LinePeak]
+    shift: float | None
+    kind: str
+    desc: str
+
+    def pair_about(c: float) -> tuple[LinePeak, LinePeak] | None:
+        for ln in lines:
+            if abs(ln.frequency_hz - c) <= tol:
+                continue
+            partner = _nearest(lines, 2 * c - ln.frequency_hz, tol)
+            if partner is not None and partner is not ln:
+                if abs(10 * math.log10(partner.power / ln.power)) <= 20:
+                    return (ln, partner)
+        return None
+
+    def equal_partner(ln0: LinePeak) -> LinePeak | None:
+        for ln in lines[1:]:
+            if ln.power >= ln0.power / 2:  # within 3 dB
+                return ln
+        return None
+
+    if line_hz is not None:
+        ln = _nearest(lines, line_hz, max(tol, 50.0))
+        if ln is None:
+            raise MeasurementError(f"no line within 50 Hz of {line_hz:.1f} Hz to track")
+        chosen = [ln]
+        shift = (ln.frequency_hz - carrier_offset_hz) if carrier_offset_hz is not None else None
+        kind, desc = "line", f"the line at {ln.frequency_hz:.1f} Hz (as asked)"
+        if carrier_offset_hz is not None and abs(ln.frequency_hz - carrier_offset_hz) <= tol:
+            shift, kind = 0.0, "carrier"
+    elif mode in ("cw", "am") or (mode is None and carrier_offset_hz is not None and
+                                    _nearest(lines, carrier_offset_hz, tol) is not None):
+        ln = _nearest(lines, carrier_offset_hz, tol) if carrier_offset_hz is not None else strongest
+        if ln is None:
+            raise MeasurementError("no carrier line found where the carrier should be")
+        chosen, shift, kind = [ln], 0.0, "carrier"
+        desc = f"the carrier at {ln.frequency_hz:.1f} Hz"
+    elif mode in ("usb", "lsb"):
+        sign = 1.0 if mode == "usb" else -1.0
+        ln = None
+        if tone_hz is not None and carrier_offset_hz is not None:
+            ln = _nearest(lines, carrier_offset_hz + sign * tone_hz, tol)
+        if ln is None:
+            side = [x for x in lines if carrier_offset_hz is None
+                    or sign * (x.frequency_hz - carrier_offset_hz) > tol]
+            ln = side[0] if side else strongest
+        chosen, kind = [ln], "tone"
+        if tone_hz is not None:
+            shift = sign * tone_hz
+        else:
+            shift = None
+        desc = f"the SSB test tone at {ln.frequency_hz:.1f} Hz"
+        if shift is None:
+            desc += " (its audio frequency is not known: give --tone for the carrier offset)"
+    elif mode in ("dsb", "two-tone") or mode is None:
+        pair = pair_about(carrier_offset_hz) if carrier_offset_hz is not None else None
+        if pair is None and carrier_offset_hz is None:
+            partner = equal_partner(strongest)
+            if partner is not None:
+                pair = (strongest, partner)
+        if pair is not None:
+            lo, hi = sorted(pair, key=lambda x: x.frequency_hz)
+            chosen = [hi, lo]
+            centre = 0.5 * (lo.frequency_hz + hi.frequency_hz)
+            if mode == "dsb" or (mode is None and carrier_offset_hz is not None):
+                shift, kind = 0.0, "sideband pair"
+                desc = (f"the two sideband lines at {lo.frequency_hz:.1f} and {hi.frequency_hz:.1f} Hz, "
+                        f"averaged (centre {centre:.1f} Hz = carrier)")
+            else:
+                shift = 0.0 if mode is None else None
+                kind = "line pair"
+                desc = (f"the two lines at {lo.frequency_hz:.1f} and {hi.frequency_hz:.1f} Hz, averaged "
+                        f"(centre {centre:.1f} Hz)")
+        else:
+            leak = _nearest(lines, carrier_offset_hz, tol) if carrier_offset_hz is not None else None
+            if leak is not None:
+                chosen, shift, kind = [leak], 0.0, "carrier leak"
+                desc = f"the residual carrier at {leak.frequency_hz:.1f} Hz"
+            elif mode is None:
+                chosen, shift, kind = [strongest], 0.0, "line"
+                desc = f"the strongest line, at {strongest.frequency_hz:.1f} Hz"
+            else:
+                raise MeasurementError(
+                    "no tone lines and no carrier leak to follow (a voice or noise-modulated "
+                    "signal has no stable line): record a tone test for drift"
+                )
+    else:
+        raise UsageError(f"unknown mode {mode!r}")
+
+    # SNR per sample of the weakest followed line: P_line / (N0 fs)
+    p_min = min(ln.power for ln in chosen)
+    snr = p_min / (noise_psd * fs)
+    others = [ln for ln in lines if all(abs(ln.frequency_hz - c.frequency_hz) > tol for c in chosen)]
+    sep = min((min(abs(o.frequency_hz - c.frequency_hz) for c in chosen) for o in others), default=math.inf)
+    ratio = max(
+        (math.sqrt(o.power / p_min) / max(min(abs(o.frequency_hz - c.frequency_hz) for c in chosen), 1e-9)
+         for o in others),
+        default=0.0,
+    )
+    return LinePlan(tuple(c.frequency_hz for c in chosen), shift, kind, desc, snr, sep, ratio)
+
+
+def choose_block_s(
+    snr: float,
+    sample_rate_hz: float,
+    duration_s: float,
+    *,
+    target_sigma_hz: float = TARGET_SIGMA_HZ,
+) -> float:
+    """Block length for the tracker from the line's per-sample SNR.
+
+    The shortest octave length (1/128 .. 8 s) whose Cramér–Rao 1-sigma,
+    ``sqrt(6 / ((2 pi)^2 SNR fs T^3))``, is at most ``target_sigma_hz`` and whose
+    post-integration SNR ``SNR fs T`` reaches 60 (18 dB, well above the estimator's
+    threshold), but no longer than a 1/8 of the recording.
+
+    Raises
+    ------
+    MeasurementError
+        The line is too weak to follow in blocks of 1/8 of the recording.
+    """
+    if not (snr > 0 and math.isfinite(snr)):
+        raise MeasurementError("the line's SNR is unknown or zero: cannot choose a block length")
+    fs = sample_rate_hz
+    t_sigma = (6.0 / ((2 * math.pi) ** 2 * snr * fs * target_sigma_hz**2)) ** (1.0 / 3.0)
+    t_det = MIN_BLOCK_SNR / (snr * fs)
+    need = max(t_sigma, t_det, 64.0 / fs)
+    limit = duration_s / MIN_BLOCKS
+    fits = [t for t in _BLOCK_CHOICES if t <= limit]
+    if not fits or max(fits) < max(t_det, 64.0 / fs):
+        raise MeasurementError(
+            f"the recording ({duration_s:.1f} s) is too short to follow this line: it needs "
+            f"{MIN_BLOCKS} blocks of at least {max(t_det, 64.0 / fs):.3g} s"
+        )
+    ok = [t for t in fits if t >= need]
+    return min(ok) if ok else max(fits)
+
+
+def default_span_hz(plan: LinePlan, block_s: float) -> float:
+    """Search half-width: 20 Hz or 8 bins, kept under 0.4x the distance to other lines."""
+    span = max(20.0, 8.0 / block_s)
+    if math.isfinite(plan.separation_hz):
+        span = min(span, 0.4 * plan.separation_hz)
+    return max(span, 2.0 / block_s)
+
+
+def _window_for(plan: LinePlan, block_s: float, target_sigma_hz: float = TARGET_SIGMA_HZ) -> Window:
+    """Hann when a rectangular window's leakage from other lines could bias the estimate.
+
+    A line of relative amplitude r at distance d Hz leaks about r / (pi d T) through the
+    rectangular window's sidelobes (Harris 1978, -6 dB/octave), biasing the frequency by
+    up to about that fraction of a bin (1/T Hz).
+    """
+    bias = plan.neighbour_ratio / (math.pi * block_s) / block_s
+    return "hann" if bias > 0.3 * target_sigma_hz else "rect"
+
+
+# --------------------------------------------------------------------------------------
+# Tracker
+# --------------------------------------------------------------------------------------
+@dataclass(frozen=True)
+class BlockEstimate:
+    """What one block gave."""
+
+    index: int
+    """Block number from the start."""
+    time_s: float
+    """Block centre, s from the start of the recording."""
+    lines: tuple[ToneEstimate, ...]
+    """One estimate per followed line."""
+    stable: ToneEstimate | None
+    """The stable (reference) line's estimate, in reference mode."""
+
+    @property
+    def valid(self) -> bool:
+        """Every followed line was detected in this block."""
+        return all(e.detected for e in self.lines)
+
+    @property
+    def frequency_hz(self) -> float:
+        """Mean frequency of the followed lines, Hz offset."""
+        return float(np.mean([e.frequency_hz for e in self.lines]))
+
+    @property
+    def sigma_hz(self) -> float:
+        """1-sigma of that mean, Hz."""
+        return math.sqrt(sum(e.sigma_hz**2 for e in self.lines)) / len(self.lines)
+
+    @property
+    def level_dbfs(self) -> float:
+        """Summed power of the followed lines, dBFS."""
+        p = sum(e.amplitude**2 for e in self.lines)
+        return 10 * math.log10(p) if p > 0 else -math.inf
+
+
+@dataclass(frozen=True)
+class FrequencyTrack:
+    """The followed line's frequency, block by block."""
+
+    times_s: npt.NDArray[np.float64]
+    """Block centres, s from the start of the recording."""
+    frequency_hz: npt.NDArray[np.float64]
+    """Mean frequency of the followed lines per block, Hz offset from the capture centre."""
+    sigma_hz: npt.NDArray[np.float64]
+    """1-sigma of each block's frequency (Cramér–Rao at the block's SNR), Hz."""
+    level_dbfs: npt.NDArray[np.float64]
+    """Power of the followed line(s) per block, dBFS."""
+    snr_db: npt.NDArray[np.float64]
+    """Per-sample SNR of the weakest followed line per block, dB."""
+    valid: npt.NDArray[np.bool_]
+    """True where every followed line was detected."""
+    lines_hz: npt.NDArray[np.float64]
+    """Each followed line's frequency per block, shape (n_blocks, n_lines), Hz."""
+    block_s: float
+    """Block length (also the ADEV tau0), s."""
+    sample_rate_hz: float
+    center_frequency_hz: float | None
+    """Capture centre, Hz (None when unknown)."""
+    plan: LinePlan
+    """What was followed."""
+    span_hz: float
+    """Search half-width per block, Hz."""
+    window: str
+    """Estimator taper ("rect" or "hann")."""
+    stable_hz: npt.NDArray[np.float64] | None = None
+    """Stable line's frequency per block (reference mode), Hz offset."""
+    stable_sigma_hz: npt.NDArray[np.float64] | None = None
+    stable_valid: npt.NDArray[np.bool_] | None = None
+    stable_nominal_hz: float | None = None
+    """Where the stable line is said to be, Hz offset (from ``--reference``)."""
+    stable_is_absolute: bool = False
+    """True when ``--reference`` gave an absolute RF frequency: the stable line's measured
+    offset from it is then the receiver's frequency error, and is removed."""
+
+    @property
+    def n_blocks(self) -> int:
+        return int(self.times_s.size)
+
+    @property
+    def duration_s(self) -> float:
+        return self.n_blocks * self.block_s
+
+    def corrected(self) -> tuple[npt.NDArray[np.float64], npt.NDArray[np.float64], npt.NDArray[np.float64]]:
+        """Times, reference frequency (Hz offset) and 1-sigma of the usable blocks.
+
+        The reference frequency is the carrier when the plan knows its relation to the
+        lines (``carrier_shift_hz``), else the followed line(s) themselves. In reference
+        mode the stable line's excursion is subtracted: ``f - (s - s_ref)`` with
+        ``s_ref`` the stable line's stated frequency when absolute, else its mean.
+        """
+        shift = self.plan.carrier_shift_hz or 0.0
+        ok = self.valid.copy()
+        f = self.frequency_hz - shift
+        sig = self.sigma_hz.copy()
+        if self.stable_hz is not None and self.stable_valid is not None and self.stable_sigma_hz is not None:
+            ok &= self.stable_valid
+            if not ok.any():
+                return np.zeros(0), np.zeros(0), np.zeros(0)
+            if self.stable_is_absolute and self.stable_nominal_hz is not None:
+                s_ref = self.stable_nominal_hz
+            else:
+                s_ref = float(np.mean(self.stable_hz[ok]))
+            f = f - (self.stable_hz - s_ref)
+            sig = np.hypot(sig, self.stable_sigma_hz)
+        return self.times_s[ok], f[ok], sig[ok]
+
+
+class LineTracker:
+    """Follow the planned line(s) through blocks pushed in order (streaming).
+
+    Parameters
+    ----------
+    sample_rate_hz : float
+        Sample rate, Hz.
+    plan : LinePlan
+        What to follow.
+    block_s : float
+        Block length, s (rounded to whole samples).
+    span_hz : float, optional
+        Search half-width around the last seen frequency (default :func:`default_span_hz`).
+    stable_hz : float, optional
+        Offset of a stable line to follow as well (reference mode).
+    window : {"rect", "hann"}, optional
+        Estimator taper (default chosen from the neighbouring lines).
+    """
+
+    def __init__(
+        self,
+        sample_rate_hz: float,
+        plan: LinePlan,
+        *,
+        block_s: float,
+        span_hz: float | None = None,
+        stable_hz: float | None = None,
+        stable_is_absolute: bool = False,
+        window: Window | None = None,
+        center_frequency_hz: float | None = None,
+    ) -> None:
+        if not block_s > 0:
+            raise ValueError(f"{block_s=} must be > 0")
+        self.sample_rate_hz = float(sample_rate_hz)
+        self.plan = plan
+        self.block_n = max(8, int(round(block_s * sample_rate_hz)))
+        self.block_s = self.block_n / self.sample_rate_hz
+        self.span_hz = float(span_hz) if span_hz is not None else default_span_hz(plan, self.block_s)
+        if not self.span_hz > 0:
+            raise ValueError(f"{span_hz=} must be > 0")
+        self.window: Window = window or _window_for(plan, self.block_s)
+        self.stable_hz = stable_hz
+        self.stable_is_absolute = stable_is_absolute
+        self.center_frequency_hz = center_frequency_hz
+        self._centres: list[float] = list(plan.lines_hz)
+        self._stable_centre = stable_hz
+        self._pending: list[npt.NDArray[np.complex64]] = []
+        self._n_pending = 0
+        self._blocks: list[BlockEstimate] = []
+
+    @property
+    def blocks(self) -> Sequence[BlockEstimate]:
+        """Estimates so far."""
+        return self._blocks
+
+    def push(self, samples: npt.ArrayLike) -> list[BlockEstimate]:
+        """Add samples; return the estimates of the blocks they completed."""
+        arr = np.asarray(samples, dtype=np.complex64).ravel()
+        if arr.size:
+            self._pending.append(arr)
+            self._n_pending += arr.size
+        out: list[BlockEstimate] = []
+        while self._n_pending >= self.block_n:
+            buf = np.concatenate(self._pending) if len(self._pending) > 1 else self._pending[0]
+            block, rest = buf[: self.block_n], buf[self.block_n :]
+            self._pending = [rest] if rest.size else []
+            self._n_pending = rest.size
+            out.append(self.process_block(block))
+        return out
+
+    def process_block(self, block: npt.NDArray[np.complex64]) -> BlockEstimate:
+        """Measure one whole block (``block_n`` samples) and move the search centres."""
+        centres: list[float | None] = list(self._centres)
+        if self._stable_centre is not None:
+            centres.append(self._stable_centre)
+        ests = estimate_tones(block, self.sample_rate_hz, centres, span_hz=self.span_hz, window=self.window)
+        n_lines = len(self._centres)
+        line_ests = tuple(ests[:n_lines])
+        stable = ests[n_lines] if self._stable_centre is not None else None
+        # follow: move each centre to where its line was seen (only when seen)
+        if all(e.detected for e in line_ests):
+            self._centres = [e.frequency_hz for e in line_ests]
+        if stable is not None and stable.detected:
+            self._stable_centre = stable.frequency_hz
+        i = len(self._blocks)
+        est = BlockEstimate(i, (i + 0.5) * self.block_s, line_ests, stable)
+        self._blocks.append(est)
+        return est
+
+    def track(self) -> FrequencyTrack:
+        """The track so far."""
+        b = self._blocks
+        n = len(b)
+        k = len(self.plan.lines_hz)
+        stable = self.stable_hz is not None
+
+        def arr(vals: Sequence[float]) -> npt.NDArray[np.float64]:
+            return np.asarray(vals, dtype=np.float64).reshape(-1)
+
+        return FrequencyTrack(
+            times_s=arr([e.time_s for e in b]),
+            frequency_hz=arr([e.frequency_hz for e in b]),
+            sigma_hz=arr([e.sigma_hz for e in b]),
+            level_dbfs=arr([e.level_dbfs for e in b]),
+            snr_db=arr([min(x.snr_db for x in e.lines) for e in b]),
+            valid=np.asarray([e.valid for e in b], dtype=bool).reshape(-1),
+            lines_hz=np.asarray([[x.frequency_hz for x in e.lines] for e in b], dtype=np.float64).reshape(n, k),
+            block_s=self.block_s,
+            sample_rate_hz=self.sample_rate_hz,
+            center_frequency_hz=self.center_frequency_hz,
+            plan=self.plan,
+            span_hz=self.span_hz,
+            window=self.window,
+            stable_hz=arr([e.stable.frequency_hz for e in b if e.stable]) if stable else None,
+            stable_sigma_hz=arr([e.stable.sigma_hz for e in b if e.stable]) if stable else None,
+            stable_valid=np.asarray([bool(e.stable and e.stable.detected) for e in b], dtype=bool)
+            if stable
+            else None,
+            stable_nominal_hz=self.stable_hz,
+            stable_is_absolute=self.stable_is_absolute,
+        )
+
+
+def track_frequency(
+    recording: Recording,
+    reference_offset_hz: float | Sequence[float] | LinePlan,
+    *,
+    block_s: float | None = None,
+    span_hz: float | None = None,
+    progress: ProgressFn | None = None,
+    stable_line_hz: float | None = None,
+    stable_is_absolute: bool = False,
+    window: Window | None = None,
+) -> FrequencyTrack:
+    """Follow a line through a recording, block by block, at bounded memory.
+
+    Parameters
+    ----------
+    recording : Recording
+        The recording (streamed with ``chunks``; only one block is in memory).
+    reference_offset_hz : float, sequence of float, or LinePlan
+        The line to follow (Hz offset from the capture centre), or two lines whose mean
+        is followed (DSB sidebands), or a full :class:`LinePlan`.
+    block_s : float, optional
+        Block length, s. Default: :func:`choose_block_s` from the line's SNR in a survey
+        spectrum.
+    span_hz : float, optional
+        Search half-width around the last seen frequency, Hz.
+    progress : callable, optional
+        ``progress(samples_done, samples_total)`` after each block.
+    stable_line_hz : float, optional
+        Offset of a stable line in the same capture (reference mode).
+    stable_is_absolute : bool
+        The stable line's frequency was given as absolute RF (so it is exact).
+    window : {"rect", "hann"}, optional
+        Estimator taper; default chosen from the neighbouring lines.
+
+    Returns
+    -------
+    FrequencyTrack
+        The last partial block is dropped so every block has the same length.
+
+    References
+    ----------
+    .. [1] D. C. Rife and R. R. Boorstyn, IEEE Trans. Inf. Theory IT-20(5):591-598, 1974.
+    """
+    fs = recording.sample_rate_hz
+    if isinstance(reference_offset_hz, LinePlan):
+        plan = reference_offset_hz
+    else:
+        offs = (
+            (float(reference_offset_hz),)
+            if isinstance(reference_offset_hz, (int, float))
+            else tuple(float(v) for v in reference_offset_hz)
+        )
+        if not 1 <= len(offs) <= 2:
+            raise ValueError("reference_offset_hz must name one or two lines")
+        plan = LinePlan(offs, 0.0, "line" if len(offs) == 1 else "line pair",
+                        "the line(s) as given")
+    if block_s is None or (not math.isfinite(plan.snr) and window is None):
+        spectrum, noise = survey_spectrum(recording)
+        plan = _with_survey(plan, spectrum, noise)
+    if block_s is None:
+        block_s = choose_block_s(plan.snr, fs, recording.duration_s)
+    tracker = LineTracker(
+        fs,
+        plan,
+        block_s=block_s,
+        span_hz=span_hz,
+        stable_hz=stable_line_hz,
+        stable_is_absolute=stable_is_absolute,
+        window=window,
+        center_frequency_hz=recording.center_frequency_hz,
+    )
+    n_blocks = recording.n_samples // tracker.block_n
+    if n_blocks < 1:
+        raise MeasurementError(
+            f"the recording ({recording.duration_s:.2f} s) is shorter than one block ({tracker.block_s:.3g} s)",
+            recording.path,
+        )
+    stop = n_blocks * tracker.block_n
+    done = 0
+    # read several blocks per call when blocks are small (fewer reader calls)
+    per_read = max(1, (1 << 20) // tracker.block_n)
+    for chunk in recording.chunks(tracker.block_n * per_read, stop=stop):
+        tracker.push(chunk)
+        done += chunk.size
+        if progress is not None:
+            progress(done, stop)
+    return tracker.track()
+
+
+def _with_survey(plan: LinePlan, spectrum: Spectrum, noise: float) -> LinePlan:
+    """Fill a given plan's SNR and neighbour figures from a survey spectrum."""
+    fs = spectrum.sample_rate_hz
+    lines = find_lines(spectrum.freqs_hz, spectrum.psd, noise, min_ratio_db=10.0, max_lines=24)
+    tol = max(4 * spectrum.bin_hz, 5.0)
+    powers = []
+    for f in plan.lines_hz:
+        near = _nearest(lines, f, tol)
+        if near is None:
+            raise MeasurementError(f"no line found near {f:.1f} Hz (10 dB above the noise) to track")
+        powers.append(near.power)
+    p_min = min(powers)
+    others = [ln for ln in lines if all(abs(ln.frequency_hz - c) > tol for c in plan.lines_hz)]
+    sep = min((min(abs(o.frequency_hz - c) for c in plan.lines_hz) for o in others), default=math.inf)
+    ratio = max(
+        (math.sqrt(o.power / p_min) / max(min(abs(o.frequency_hz - c) for c in plan.lines_hz), 1e-9)
+         for o in others),
+        default=0.0,
+    )
+    return replace(plan, snr=p_min / (noise * fs), separation_hz=sep, neighbour_ratio=ratio)
+
+
+# --------------------------------------------------------------------------------------
+# Figures
+# --------------------------------------------------------------------------------------
+@dataclass(frozen=True)
+class DriftResult:
+    """A track and the figures drawn from it."""
+
+    track: FrequencyTrack
+    measurements: Mapping[str, Measurement]
+    allan: AllanResult | None = None
+    """Overlapping ADEV of fractional frequency (None when the RF frequency is unknown)."""
+    fit: tuple[float, float] | None = None
+    """Regression line of the reference frequency: (intercept Hz at t = 0, slope Hz/s)."""
+    nominal_offset_hz: float = 0.0
+    """What ``frequency_offset_hz`` is measured from, Hz offset (0: the capture centre)."""
+    warnings: tuple[str, ...] = ()
+    details: Mapping[str, Any] = field(default_factory=dict)
+
+    def frequency_trace(self) -> Trace:
+        """Time versus reference-frequency offset, for plots."""
+        t, f, s = self.track.corrected()
+        return Trace(
+            x=t,
+            y=f - self.nominal_offset_hz,
+            x_label="time (s)",
+            y_label="frequency offset (Hz)",
+            extra={
+                "sigma": s,
+                "fit": self.fit,
+                "nominal_offset_hz": self.nominal_offset_hz,
+                "block_s": self.track.block_s,
+                "what": self.track.plan.description,
+                "relative": self.track.stable_hz is not None,
+                "settling_s": (self.measurements.get("warmup_settling_s") or failed("s", "")).value,
+                "key_down_s": self.details.get("key_down_s"),
+            },
+        )
+
+    def allan_trace(self) -> Trace | None:
+        """tau versus ADEV (with error bars in ``extra``), for plots."""
+        if self.allan is None or self.allan.taus_s.size == 0:
+            return None
+        return Trace(
+            x=self.allan.taus_s,
+            y=self.allan.deviation,
+            x_label="averaging time tau (s)",
+            y_label="overlapping Allan deviation",
+            extra={"error": self.allan.error, "n": self.allan.n_terms},
+        )
+
+
+def _slope(t: npt.NDArray[np.float64], f: npt.NDArray[np.float64]) -> tuple[float, float, float, float]:
+    """OLS slope (Hz/s), intercept, standard error of the slope and lag-1 residual correlation.
+
+    The standard error is inflated by sqrt((1 + rho) / (1 - rho)) for positively
+    correlated residuals (effective sample size of an AR(1) series; e.g. Bartlett 1946 /
+    common practice in regression on time series).
+    """
+    n = t.size
+    tm = float(t.mean())
+    dt = t - tm
+    sxx = float(np.sum(dt * dt))
+    slope = float(np.sum(dt * (f - f.mean()))) / sxx
+    icpt = float(f.mean()) - slope * tm
+    r = f - (icpt + slope * t)
+    s2 = float(np.sum(r * r)) / max(n - 2, 1)
+    se = math.sqrt(s2 / sxx)
+    rr = float(np.sum(r * r))
+    rho = float(np.sum(r[1:] * r[:-1])) / rr if rr > 0 and n > 3 else 0.0
+    if rho > 0:
+        rho = min(rho, 1.0 - 2.0 / n)  # keep n_eff >= ~1
+        se *= math.sqrt((1 + rho) / (1 - rho))
+    return slope, icpt, se, rho
+
+
+def _window_excursion(t: npt.NDArray[np.float64], f: npt.NDArray[np.float64], w: float) -> tuple[float, float]:
+    """Largest max - min within any window of length ``w`` seconds, and its start time."""
+    best, best_t = 0.0, float(t[0])
+    dq_max: deque[int] = deque()
+    dq_min: deque[int] = deque()
+    lo = 0
+    for hi in range(t.size):
+        while dq_max and f[dq_max[-1]] <= f[hi]:
+            dq_max.pop()
+        dq_max.append(hi)
+        while dq_min and f[dq_min[-1]] >= f[hi]:
+            dq_min.pop()
+        dq_min.append(hi)
+        while t[hi] - t[lo] > w:
+            lo += 1
+            if dq_max[0] < lo:
+                dq_max.popleft()
+            if dq_min[0] < lo:
+                dq_min.popleft()
+        exc = float(f[dq_max[0]] - f[dq_min[0]])
+        if exc > best:
+            best, best_t = exc, float(t[lo])
+    return best, best_t
+
+
+def _noise_pp(n: int, sigma: float) -> float:
+    """Expected max - min of n independent N(0, sigma^2): ~ 2 sigma sqrt(2 ln n)."""
+    return 2.0 * sigma * math.sqrt(2.0 * math.log(max(n, 2)))
+
+
+def _longest_run(mask: npt.NDArray[np.bool_]) -> tuple[int, int]:
+    best = (0, 0)
+    start = None
+    for i, v in enumerate(list(mask) + [False]):
+        if v and start is None:
+            start = i
+        elif not v and start is not None:
+            if i - start > best[1] - best[0]:
+                best = (start, i)
+            start = None
+    return best
+
+
+def drift_measurements(
+    track: FrequencyTrack,
+    *,
+    nominal_offset_hz: float | None = None,
+    window_s: float = DEFAULT_WINDOW_S,
+    settle_band_hz: float = DEFAULT_SETTLE_BAND_HZ,
+) -> DriftResult:
+    """The drift figures of a track (definitions in ``docs/drift.md``).
+
+    Parameters
+    ----------
+    track : FrequencyTrack
+        From :func:`track_frequency` or :class:`LineTracker`.
+    nominal_offset_hz : float, optional
+        Where the carrier should be, Hz offset (the user's ``--carrier``). Default 0:
+        ``frequency_offset_hz`` is then the carrier's offset from the capture centre.
+    window_s : float
+        Window for ``drift_worst_window_hz``, s.
+    settle_band_hz : float
+        Half-width of the settling band, Hz (widened to 5 sigma of one block if larger).
+
+    Returns
+    -------
+    DriftResult
+
+    Notes
+    -----
+    - ``drift_hz_per_min``: least-squares slope of the reference frequency against time,
+      x 60; its standard error from the residual scatter, inflated for correlated
+      residuals by ``sqrt((1 + rho1)/(1 - rho1))`` (lag-1 autocorrelation rho1).
+    - ``drift_peak_to_peak_hz``: max - min of the per-block frequency over the whole
+      track. Noise adds about ``2 sigma sqrt(2 ln n)``; when the value is within 1.5x
+      of that it is flagged as noise-limited (an upper bound).
+    - ``allan_deviation``: overlapping ADEV (NIST SP 1065 eq. 11) of fractional frequency
+      ``y = (f - mean f) / f_RF`` at octave taus from the block length, on the longest run
+      of usable blocks; value at the octave tau nearest 10 s.
+    """
+    if window_s <= 0:
+        raise ValueError(f"{window_s=} must be > 0")
+    warnings: list[str] = []
+    nominal = 0.0 if nominal_offset_hz is None else float(nominal_offset_hz)
+    t, f, s = track.corrected()
+    names = ("frequency_offset_hz", "drift_hz_per_min", "drift_peak_to_peak_hz",
+             "drift_worst_window_hz", "warmup_settling_s")
+    units = ("Hz", "Hz/min", "Hz", "Hz", "s")
+    relative = track.stable_hz is not None
+    rel_note = (
+        " Relative to the stable reference line (the receiver's own drift removed)."
+        if relative
+        else " Includes the receiver's own oscillator drift (no --reference line)."
+    )
+    details: dict[str, Any] = {}
+    if t.size < MIN_BLOCKS:
+        why = (f"only {t.size} of {track.n_blocks} blocks had the line above the noise "
+               f"(need {MIN_BLOCKS})")
+        ms = {nm: failed(u, f"not measured: {why}.") for nm, u in zip(names, units)}
+        if track.center_frequency_hz is not None:
+            ms["allan_deviation"] = failed("1", f"not measured: {why}.")
+        return DriftResult(track, ms, None, None, nominal, (why,), details)
+
+    T = track.block_s
+    sig_med = float(np.median(s))
+    what = track.plan.description
+    ms: dict[str, Measurement] = {}
+
+    # --- offset ---------------------------------------------------------------------
+    mean_f = float(np.mean(f))
+    if track.plan.kind in ("carrier", "carrier leak", "sideband pair"):
+        where = "the carrier"
+    elif track.plan.kind == "tone" and track.plan.carrier_shift_hz is not None:
+        where = "the carrier (tone line minus the tone's audio frequency)"
+    else:
+        where = "the followed line"
+    if track.plan.kind == "tone" and track.plan.carrier_shift_hz is None:
+        ms["frequency_offset_hz"] = failed(
+            "Hz", "not measured: the SSB tone's audio frequency is unknown (give --tone)."
+        )
+    else:
+        u_stat = math.sqrt(float(np.sum(s * s))) / s.size
+        ref_txt = "the nominal carrier (--carrier)" if nominal_offset_hz is not None else "the capture centre"
+        cal = (
+            " The receiver's frequency error is removed using the stable line's stated frequency."
+            if relative and track.stable_is_absolute
+            else " Excludes the receiver's own frequency calibration error (its reference oscillator)."
+        )
+        absolute = (track.center_frequency_hz + mean_f) if track.center_frequency_hz is not None else None
+        det: dict[str, Any] = {"mean_offset_from_centre_hz": mean_f}
+        if absolute is not None:
+            det["mean_frequency_hz"] = absolute
+        ms["frequency_offset_hz"] = Measurement(
+            value=mean_f - nominal,
+            unit="Hz",
+            uncertainty=u_stat,
+            note=f"Time-mean frequency of {where} minus {ref_txt}, from {what}.{cal}",
+            details=det,
+        )
+
+    # --- slope ----------------------------------------------------------------------
+    slope, icpt, se, rho = _slope(t, f)
+    ms["drift_hz_per_min"] = Measurement(
+        value=slope * 60.0,
+        unit="Hz/min",
+        uncertainty=se * 60.0,
+        note=(f"Least-squares slope of the frequency of {where} over {t[-1] - t[0] + T:.0f} s "
+              f"({t.size} blocks of {T:g} s); standard error from the residuals"
+              + (f", widened for their correlation (rho={rho:.2f})" if rho > 0.05 else "")
+              + "." + rel_note),
+        details={"intercept_hz": icpt - nominal, "residual_lag1_correlation": rho},
+    )
+
+    # --- peak to peak ---------------------------------------------------------------
+    pp = float(f.max() - f.min())
+    noise_pp = _noise_pp(f.size, sig_med)
+    pp_noise = pp <= 1.5 * noise_pp
+    ms["drift_peak_to_peak_hz"] = Measurement(
+        value=pp,
+        unit="Hz",
+        uncertainty=math.sqrt(2.0) * sig_med,
+        limited_by_noise=pp_noise,
+        bound="upper" if pp_noise else None,
+        note=(f"Max minus min of the {T:g}-s block frequency over the whole track"
+              + (f"; within the noise of the estimates (~{noise_pp:.2g} Hz expected from noise "
+                 "alone), so the true figure is at most this" if pp_noise else "")
+              + "." + rel_note),
+        details={"noise_peak_to_peak_hz": noise_pp, "t_max_s": float(t[np.argmax(f)]),
+                 "t_min_s": float(t[np.argmin(f)])},
+    )
+
+    # --- worst window ---------------------------------------------------------------
+    span_s = float(t[-1] - t[0] + T)
+    if span_s <= window_s:
+        ww, wt = pp, float(t[0] - T / 2)
+        wnote = (f"The recording ({span_s:.0f} s of usable blocks) is not longer than the "
+                 f"{window_s:g}-s window: this is the peak-to-peak of the whole track.")
+    else:
+        ww, wt = _window_excursion(t, f, window_s - T)
+        wnote = f"Largest max-minus-min frequency within any {window_s:g}-s window."
+    n_win = max(2, int(round(min(window_s, span_s) / T)))
+    wnoise = _noise_pp(n_win, sig_med)
+    w_noise = ww <= 1.5 * wnoise
+    ms["drift_worst_window_hz"] = Measurement(
+        value=ww,
+        unit="Hz",
+        uncertainty=math.sqrt(2.0) * sig_med,
+        limited_by_noise=w_noise,
+        bound="upper" if w_noise else None,
+        note=wnote + (" Within the noise of the estimates." if w_noise else "") + rel_note,
+        details={"window_s": window_s, "window_start_s": wt},
+    )
+
+    # --- settling -------------------------------------------------------------------
+    key_i = int(np.argmax(track.valid))
+    key_down = key_i * T
+    details["key_down_s"] = key_down
+    band = max(settle_band_hz, 5.0 * sig_med)
+    # final value: the last 20 % of the track, at least 60 s, at most half of it
+    n_tail = max(MIN_BLOCKS, int(math.ceil(0.2 * f.size)), int(math.ceil(60.0 / T)))
+    n_tail = min(n_tail, max(MIN_BLOCKS, f.size // 2))
+    tail = f[-n_tail:]
+    f_end = float(np.median(tail))
+    started = "the start of the recording (line present from the start)" if key_i == 0 else \
+        f"key-down at {key_down:.1f} s (first block with the line)"
+    if np.any(np.abs(tail - f_end) > band):
+        tail_slope = _slope(t[-n_tail:], tail)[0] * 60.0
+        ms["warmup_settling_s"] = Measurement(
+            value=None,
+            unit="s",
+            note=(f"Did not settle within +/-{band:.2g} Hz before the end: the last "
+                  f"{n_tail} blocks still move ({tail_slope:+.2g} Hz/min); settling time > "
+                  f"{t[-1] - key_down:.0f} s after {started}."),
+            details={"band_hz": band, "lower_bound_s": float(t[-1] + T / 2 - key_down)},
+        )
+    else:
+        outside = np.flatnonzero(np.abs(f - f_end) > band)
+        settle_t = float(t[outside[-1] + 1] - T / 2) if outside.size else float(t[0] - T / 2)
+        value = max(0.0, settle_t - key_down)
+        ms["warmup_settling_s"] = Measurement(
+            value=value,
+            unit="s",
+            uncertainty=T / math.sqrt(12.0) if value > 0 else T / 2,
+            note=(f"Time from {started} until the frequency stays within +/-{band:.2g} Hz of "
+                  f"its final value ({f_end - nominal:+.2f} Hz, median of the last {n_tail} "
+                  f"blocks)." + rel_note),
+            details={"band_hz": band, "final_offset_hz": f_end - nominal},
+        )
+
+    # --- Allan deviation ------------------------------------------------------------
+    allan: AllanResult | None = None
+    if track.center_frequency_hz is not None:
+        f_rf = track.center_frequency_hz + mean_f + (track.plan.carrier_shift_hz or 0.0)
+        ok = track.valid if track.stable_valid is None else (track.valid & track.stable_valid)
+        a, b = _longest_run(ok)
+        if b - a < MIN_BLOCKS or f_rf <= 0:
+            ms["allan_deviation"] = failed(
+                "1", f"not measured: the longest run of usable blocks is {b - a} (need {MIN_BLOCKS})."
+            )
+        else:
+            sel = np.isin(track.times_s, track.times_s[a:b])
+            tf = np.isin(t, track.times_s[a:b])
+            y = (f[tf] - mean_f) / f_rf
+            allan = oadev(y, T, data_type="frequency")
+            if allan.taus_s.size == 0:
+                allan = None
+                ms["allan_deviation"] = failed("1", "not measured: too few blocks for any tau.")
+            else:
+                tau, dev, err = allan.at(ADEV_QUOTE_TAU_S)
+                floor = float(np.median(s[tf])) / f_rf
+                ms["allan_deviation"] = Measurement(
+                    value=dev,
+                    unit="1",
+                    uncertainty=err,
+                    note=(f"Overlapping Allan deviation of fractional frequency at tau = {tau:g} s "
+                          f"(NIST SP 1065 eq. 11), RF {f_rf / 1e6:.6f} MHz, {int(sel.sum())} "
+                          f"contiguous blocks of {T:g} s. The estimator's own noise gives about "
+                          f"{floor:.1e} at tau = {T:g} s, falling as tau^-1.5." + rel_note),
+                    details={
+                        "tau_s": allan.taus_s.tolist(),
+                        "adev": allan.deviation.tolist(),
+                        "error": allan.error.tolist(),
+                        "n": allan.n_terms.tolist(),
+                        "tau_quoted_s": tau,
+                        "rf_frequency_hz": f_rf,
+                    },
+                )
+    if track.stable_hz is not None and track.stable_valid is not None:
+        lost = int(np.sum(~track.stable_valid))
+        if lost:
+            warnings.append(f"the stable reference line was not seen in {lost} of {track.n_blocks} blocks")
+    lost_line = int(np.sum(~track.valid))
+    if lost_line and key_i == 0:
+        warnings.append(f"the followed line was below the noise in {lost_line} of {track.n_blocks} blocks")
+    return DriftResult(track, ms, allan, (icpt, slope), nominal, tuple(warnings), details)
+
+
+# --------------------------------------------------------------------------------------
+# Whole job (CLI) and pipeline provider
+# --------------------------------------------------------------------------------------
+def analyse_drift(
+    recording: Recording,
+    *,
+    mode: str | None = None,
+    carrier_hz: float | None = None,
+    tone_hz: float | None = None,
+    line_hz: float | None = None,
+    reference_hz: float | None = None,
+    nominal_hz: float | None = None,
+    block_s: float | None = None,
+    span_hz: float | None = None,
+    window_s: float = DEFAULT_WINDOW_S,
+    settle_band_hz: float = DEFAULT_SETTLE_BAND_HZ,
+    progress: ProgressFn | None = None,
+    spectrum: tuple[Spectrum, float] | None = None,
+) -> DriftResult:
+    """Survey, plan, track and figure: what ``iqscope drift`` runs.
+
+    ``carrier_hz`` (where the carrier is: helps choose the line), ``line_hz`` (follow this
+    line), ``reference_hz`` (a stable line: reference mode) and ``nominal_hz`` (where the
+    carrier should be: ``frequency_offset_hz`` is measured from it; default ``carrier_hz``)
+    are offsets when within +/- fs/2, else absolute RF frequencies (need the capture centre).
+    """
+    fs = recording.sample_rate_hz
+    cf = recording.center_frequency_hz
+    carrier = resolve_frequency(carrier_hz, fs, cf, "--carrier")[0] if carrier_hz is not None else None
+    line = resolve_frequency(line_hz, fs, cf, "--line")[0] if line_hz is not None else None
+    nominal = resolve_frequency(nominal_hz, fs, cf, "--carrier")[0] if nominal_hz is not None else carrier
+    if block_s is not None and not (block_s > 0 and math.isfinite(block_s)):
+        raise UsageError(f"--block {block_s!r} must be a positive number of seconds")
+    if span_hz is not None and not (span_hz > 0 and math.isfinite(span_hz)):
+        raise UsageError(f"--span {span_hz!r} must be a positive number of hertz")
+    stable: float | None = None
+    stable_abs = False
+    if reference_hz is not None:
+        stable, stable_abs = resolve_frequency(reference_hz, fs, cf, "--reference")
+    spec, noise = spectrum if spectrum is not None else survey_spectrum(recording)
+    plan = plan_lines(spec, noise, mode=mode, carrier_offset_hz=carrier, tone_hz=tone_hz, line_hz=line)
+    if stable is not None:
+        lines = find_lines(spec.freqs_hz, spec.psd, noise, min_ratio_db=10.0, max_lines=24)
+        tol = max(4 * spec.bin_hz, 5.0)
+        near = _nearest(lines, stable, max(tol, 50.0))
+        if near is None:
+            raise MeasurementError(f"no stable reference line within 50 Hz of {stable:.1f} Hz", recording.path)
+        if any(abs(near.frequency_hz - f) <= tol for f in plan.lines_hz):
+            raise UsageError("--reference names the same line that is being followed")
+        stable_search = near.frequency_hz
+        p_st = near.power / (noise * fs)
+        plan = replace(plan, snr=min(plan.snr, p_st),
+                       separation_hz=min(plan.separation_hz,
+                                         min(abs(near.frequency_hz - f) for f in plan.lines_hz)))
+    else:
+        stable_search = None
+    if block_s is None:
+        block_s = choose_block_s(plan.snr, fs, recording.duration_s)
+    track = track_frequency(
+        recording, plan, block_s=block_s, span_hz=span_hz, progress=progress,
+        stable_line_hz=stable_search, stable_is_absolute=stable_abs,
+    )
+    if stable is not None and stable_abs:
+        track = replace(track, stable_nominal_hz=stable)
+    result = drift_measurements(track, nominal_offset_hz=nominal, window_s=window_s,
+                                settle_band_hz=settle_band_hz)
+    warns = list(result.warnings) + list(recording.warnings)
+    if len({s.center_frequency_hz for s in recording.segments}) > 1:
+        warns.append("the capture centre changes between segments: offsets jump there")
+    return replace(result, warnings=tuple(warns))
+
+
+def drift_figures(ctx: AnalysisContext) -> FigureSet:
+    """Figure provider for the grade pipeline: drift figures and a "frequency" trace.
+
+    Skips cleanly (no figures, one warning) when there is no line to follow or the
+    recording is too short.
+    """
+    out = FigureSet()
+    rec = ctx.recording
+    req = ctx.request
+    opts = req.options.get("drift", {}) if isinstance(req.options, Mapping) else {}
+    try:
+        noise = ctx.noise_floor_psd if ctx.noise_floor_psd > 0 else survey_spectrum(rec)[1]
+        result = analyse_drift(
+            rec,
+            mode=ctx.signal.mode,
+            carrier_hz=ctx.signal.carrier_offset_hz,
+            tone_hz=req.tone_hz,
+            line_hz=opts.get("line_hz"),
+            reference_hz=req.reference_hz,
+            nominal_hz=req.carrier_hz,
+            block_s=opts.get("block_s"),
+            span_hz=opts.get("span_hz"),
+            window_s=req.drift_window_s,
+            settle_band_hz=float(opts.get("settle_band_hz", DEFAULT_SETTLE_BAND_HZ)),
+            progress=req.progress,
+            spectrum=(ctx.spectrum, noise),
+        )
+    except (MeasurementError, UsageError) as exc:
+        out.warnings.append(f"drift not measured: {exc.message}")
+        return out
+    out.measurements.update(result.measurements)
+    out.traces["frequency"] = result.frequency_trace()
+    adev_trace = result.allan_trace()
+    if adev_trace is not None:
+        out.traces["allan_deviation"] = adev_trace
+    out.warnings.extend(result.warnings)
+    return out
+
