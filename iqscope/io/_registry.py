@@ -10,7 +10,6 @@ a reader is one :func:`register_reader` call.
 
 from __future__ import annotations
 
-import math
 import os
 from collections.abc import Callable
 from dataclasses import dataclass
@@ -206,12 +205,10 @@ def open_recording(
     UsageError
         An unknown ``format`` name (exit status 4).
     """
-    if rate is not None:
-        rate = check_sample_rate(rate)
-    center = check_center(center, None) if center is not None else None
-    if rate is not None and not math.isfinite(rate):  # pragma: no cover - checked above
-        raise UsageError("rate must be finite")
     given, subpath = _split_subpath(os.fspath(path))
+    if rate is not None:
+        rate = check_sample_rate(rate, given)
+    center = check_center(center, given) if center is not None else None
     # a SigMF base name: "x" for x.sigmf-meta
     if not os.path.lexists(given) and subpath is None:
         meta = given.with_name(given.name + ".sigmf-meta")
