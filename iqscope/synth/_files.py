@@ -29,6 +29,9 @@ __all__ = ["SYNTH_KEY", "describe", "synth_metadata", "write_signal", "write_aud
 #: SigMF global key holding ``{"generator", "spec", "truth"}`` of a synthesized file.
 SYNTH_KEY = "iqscope:synth"
 
+#: SigMF ``core:extensions`` entry declaring the ``iqscope`` namespace (optional to readers).
+SYNTH_EXTENSION: dict[str, Any] = {"name": "iqscope", "version": "1.0.0", "optional": True}
+
 FileFormat = Literal["sigmf", "wav"]
 
 
@@ -145,7 +148,7 @@ def write_signal(
             center_frequency_hz=spec.center_frequency_hz,
             datatype=datatype,
             description=describe(spec) if description is None else description,
-            extra_global={SYNTH_KEY: synth_metadata(spec)},
+            extra_global={SYNTH_KEY: synth_metadata(spec), "core:extensions": [SYNTH_EXTENSION]},
             force=force,
         )
     if format == "wav":
