@@ -176,7 +176,7 @@ class TestRealPassbandCubic:
         res = measure_two_tone(welch_spectrum(y, fs, 16384), NOISE_PSD)
         want = 20 * math.log10(0.75 * c3 * a**3 / (a + 2.25 * c3 * a**3))
         im3 = [p for p in res.products if p.order == 3]
-        assert {round(p.line.freq_hz) for p in im3} == {round(2 * f1 - f2), round(2 * f2 - f1)}
+        assert {round(p.line.frequency_hz) for p in im3} == {round(2 * f1 - f2), round(2 * f2 - f1)}
         for p in im3:
             assert p.level_dbc == pytest.approx(want, abs=0.1)
 
@@ -200,7 +200,7 @@ class TestTonesAndBounds:
         band_noise = NOISE_PSD * 4 * spec.enbw_hz  # about the integration band
         for p in res.products:
             assert not p.line.detected
-            assert p.line.bound > 0
+            assert p.line.upper_bound > 0
             assert p.level_dbc < 10 * math.log10(band_noise / ref) + 3
 
     def test_single_tone_is_not_two_tone(self, rng: np.random.Generator) -> None:

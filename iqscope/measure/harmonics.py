@@ -38,12 +38,14 @@ from typing import Any, Final, Literal
 import numpy as np
 
 from ..dsp._levels import LevelAccumulator
+from ..dsp._lines import BOUND_SIGMAS, band_power
+from ..dsp._noise import noise_floor
 from ..dsp._spectrum import SpectrumAccumulator
 from ..dsp._types import Spectrum
 from ..errors import MetadataError, UsageError
 from ..io._recording import Recording
 from .designator import occupied_bandwidth_from_spectrum
-from .imd import effective_averages, line_half_width_hz
+from .imd import line_half_width_hz
 
 __all__ = [
     "Comparison",
@@ -69,8 +71,6 @@ StepVerdict = Literal["transmitter", "receiver (2nd order)", "receiver (3rd orde
 #: Frequency budget for finding a harmonic: main lobe plus this fraction of n f (a
 #: receiver reference drifting 1 ppm between recordings; our assumption).
 FREQUENCY_MARGIN_PPM: Final = 1.0
-#: Detection threshold, noise sigmas (one-sided, ~0.13 % false alarm per harmonic).
-DETECTION_SIGMAS: Final = 3.0
 #: Systematic 1-sigma of a level from one recording to another with the same settings:
 #: receiver gain flatness across bands (our estimate; calibrate for better).
 RECEIVER_FLATNESS_DB: Final = 0.5
@@ -214,12 +214,6 @@ def _choose_nfft(rec: Recording, target_bin_hz: float = 5.0) -> int:
     return nfft
 
 
-def _median_noise(spectrum: Spectrum) -> float:
-    nu = 2.0 * effective_averages(spectrum)
-    bias = math.log(2.0) if nu <= 2 else (1.0 - 2.0 / (9.0 * nu)) ** 3
-    return float(np.median(spectrum.psd)) / bias
-
-
 def analyse_levels(rec: Recording, nfft: int | None = None, chunk: int = 1 << 18) -> RecordingLevels:
     """One streaming pass: averaged spectrum, noise floor, mean and peak power.
 
@@ -253,24 +247,22 @@ def analyse_levels(rec: Recording, nfft: int | None = None, chunk: int = 1 << 18
         center_frequency_hz=float(rec.center_frequency_hz),
         sample_rate_hz=rec.sample_rate_hz,
         spectrum=spec,
-        noise_psd=_median_noise(spec),
+        noise_psd=noise_floor(spec).psd,
         mean_power=levels.mean_power,
         peak_power=levels.peak_power,
         gain_db=float(gain) if isinstance(gain, (int, float)) else None,
     )
 
 
-def _band_power(spec: Spectrum, lo: float, hi: float, noise_psd: float) -> tuple[float, float, int]:
-    """Noise-subtracted power in [lo, hi] (Hz offsets), its noise sigma, and bins used."""
-    sel = (spec.freqs_hz >= lo) & (spec.freqs_hz <= hi)
-    n = int(np.count_nonzero(sel))
-    if n == 0:
-        return math.nan, math.nan, 0
-    b = spec.bin_hz
-    p = float(np.sum(spec.psd[sel])) * b - noise_psd * n * b
-    corr = max(1.0, spec.enbw_hz / b)
-    sigma = noise_psd * b * math.sqrt(n * corr / effective_averages(spec))
-    return p, sigma, n
+def _band_power(spec: Spectrum, lo: float, hi: float, noise_psd: float) -> tuple[float, float, bool]:
+    """Noise-subtracted power in [lo, hi] (Hz offsets), its 1-sigma, and whether detected."""
+    n_bins = int(np.count_nonzero((spec.freqs_hz >= lo) & (spec.freqs_hz <= hi)))
+    # A narrow band is a line (deterministic); dsp.band_power's random-signal term also
+    # needs more bins than its 33-tap correlation kernel.
+    bp = band_power(spec, lo, hi, noise_psd, random_signal=n_bins > 40)
+    if bp.n_bins == 0:
+        return math.nan, math.nan, False
+    return bp.power, bp.sigma, bp.detected
 
 
 # --------------------------------------------------------------------------------------
@@ -524,14 +516,13 @@ def _harmonic_row(
             f"({rec.center_frequency_hz - nyq:.0f}-{rec.center_frequency_hz + nyq:.0f} Hz)",
             rec.path,
         )
-    p, sigma, _ = _band_power(spec, lo_off, hi_off, rec.noise_psd)
+    p, sigma, detected = _band_power(spec, lo_off, hi_off, rec.noise_psd)
     gain_corr = 0.0
     note = ""
     if rec.gain_db is not None and fundamental.gain_db is not None and rec.gain_db != fundamental.gain_db:
         gain_corr = rec.gain_db - fundamental.gain_db
         note = f"corrected for {gain_corr:+.1f} dB receiver gain difference"
-    detected = p > DETECTION_SIGMAS * sigma and p > 0
-    power = p if detected else max(p, 0.0) + DETECTION_SIGMAS * sigma
+    power = p if detected else max(p, 0.0) + BOUND_SIGMAS * sigma
     dbfs = 10.0 * math.log10(power) - gain_corr
     dbc = dbfs - fund_dbfs
     unc = math.hypot(10.0 * math.log10(1.0 + sigma / power), RECEIVER_FLATNESS_DB) if detected else None
@@ -539,8 +530,8 @@ def _harmonic_row(
     step = None
     if stepped and n in stepped:
         other, step_db = stepped[n]
-        p2, s2, _ = _band_power(other.spectrum, lo_off, hi_off, other.noise_psd)
-        if detected and p2 > DETECTION_SIGMAS * s2 and p2 > 0:
+        p2, _, det2 = _band_power(other.spectrum, lo_off, hi_off, other.noise_psd)
+        if detected and det2:
             step = attenuation_step_check(10.0 * math.log10(p), 10.0 * math.log10(p2), step_db)
         else:
             step = StepCheck(math.nan, "unclear", "harmonic not above the noise in both recordings")

@@ -34,12 +34,12 @@ from typing import Final
 import numpy as np
 import numpy.typing as npt
 
+from ..dsp._lines import LinePower, find_peaks, line_power, lobe_half_width_bins
 from ..dsp._types import Spectrum
 from ._context import AnalysisContext, FigureSet
 from ._result import Artefact, Measurement, failed
 
 __all__ = [
-    "LineLevel",
     "TonePair",
     "ProductLevel",
     "TwoToneResult",
@@ -49,10 +49,7 @@ __all__ = [
     "product_offsets_hz",
     "third_order_intercept",
     "line_half_width_hz",
-    "effective_averages",
-    "local_noise_psd",
-    "line_level",
-    "find_lines",
+    "level_sigma_db",
     "find_tone_pair",
     "measure_two_tone",
     "two_tone_figures",
@@ -60,10 +57,6 @@ __all__ = [
 
 #: 10 log10(4): a product X dBc below one of two equal tones is X - 6.02 dB below PEP.
 DB_PEP_OFFSET_DB: Final = 10.0 * math.log10(4.0)
-
-#: Detection threshold in standard deviations of the integrated noise (one-sided
-#: false-alarm probability about 0.13 % per tested frequency, Gaussian approximation).
-DETECTION_SIGMAS: Final = 3.0
 
 #: Systematic part of a line level's 1-sigma uncertainty, dB: residual window
 #: leakage, noise-floor estimation error and frequency-response ripple of the receiver
@@ -130,177 +123,20 @@ def third_order_intercept(p_tone_db: float, p_im3_db: float) -> float:
 
 
 # --------------------------------------------------------------------------------------
-# Line levels in an averaged spectrum
+# Line levels (dsp.line_power) in dB
 # --------------------------------------------------------------------------------------
-@dataclass(frozen=True)
-class LineLevel:
-    """Power of a spectral line at a given frequency, noise floor removed."""
-
-    freq_hz: float
-    """Where the power was integrated (centre), Hz offset."""
-    power: float
-    """Integrated power minus the noise in the same band, FS² (may be <= 0 in noise)."""
-    sigma: float
-    """1-sigma uncertainty of ``power`` from the noise, FS²."""
-    noise_psd: float
-    """Noise PSD used, FS²/Hz."""
-    detected: bool
-    """True when ``power`` exceeds DETECTION_SIGMAS times the noise-only sigma."""
-    bound: float
-    """When not detected: the power the line is at most (FS²); else ``power``."""
-
-    @property
-    def reported(self) -> float:
-        """``power`` when detected, else the noise-limited upper bound."""
-        return self.power if self.detected else self.bound
-
-    def sigma_db(self) -> float:
-        """1-sigma uncertainty of the level in dB (noise plus SYSTEMATIC_DB)."""
-        if not self.detected or self.power <= 0:
-            return math.nan
-        rel = 10.0 * math.log10(1.0 + self.sigma / self.power)
-        return math.hypot(rel, SYSTEMATIC_DB)
-
-
-def effective_averages(spectrum: Spectrum) -> float:
-    """Independent-equivalent number of averages of ``spectrum`` (at least 1).
-
-    Uses ``dof_averages`` of an averaged spectrum that knows its overlap (Welch 1967;
-    Percival and Walden 1993, eq. 292b), else the raw count ``n_averages``.
-    """
-    k = getattr(spectrum, "dof_averages", None)
-    if isinstance(k, (int, float)) and k > 0:
-        return max(1.0, float(k))
-    return max(1.0, float(spectrum.n_averages))
+def level_sigma_db(line: LinePower) -> float:
+    """1-sigma uncertainty of a detected line's level in dB: noise (from ``line.sigma``)
+    and :data:`SYSTEMATIC_DB` in quadrature; NaN when the line is not detected."""
+    if not line.detected or not line.power > 0:
+        return math.nan
+    rel = 10.0 * math.log10(1.0 + line.sigma / line.power)
+    return math.hypot(rel, SYSTEMATIC_DB)
 
 
 def line_half_width_hz(spectrum: Spectrum) -> float:
-    """Half width of the band a line's power is integrated over, Hz.
-
-    Two ENBWs plus half a bin covers the main lobe of the usual windows: Blackman-Harris
-    92 dB (ENBW 2.00 bins, main lobe +/- 4 bins), Hann (1.5, +/- 2), flat-tops such as
-    HFT95 (3.81, +/- 5) (Heinzel et al. 2002, Table 2; Harris 1978, Table 1).
-    """
-    return 2.0 * spectrum.enbw_hz + 0.5 * spectrum.bin_hz
-
-
-def local_noise_psd(
-    spectrum: Spectrum,
-    freq_hz: float,
-    global_noise_psd: float,
-    exclude_hz: npt.ArrayLike = (),
-    span_hz: float | None = None,
-) -> float:
-    """Noise PSD near ``freq_hz``: bias-corrected median of nearby bins, never below the global floor.
-
-    Bins within a line half-width of any frequency in ``exclude_hz`` (known lines) and
-    of ``freq_hz`` itself are left out. The median of an average of ``K`` periodograms
-    (chi-square with 2K degrees of freedom, scaled) is below its mean by the factor
-    ``(1 - 2/(9*2K))**3`` (Wilson-Hilferty approximation; exactly ln 2 for K = 1),
-    which is divided out.
-    """
-    h = line_half_width_hz(spectrum)
-    span = 25.0 * h if span_hz is None else span_hz
-    f = spectrum.freqs_hz
-    sel = np.abs(f - freq_hz) <= span
-    sel &= np.abs(f - freq_hz) > h
-    for g in np.atleast_1d(np.asarray(exclude_hz, dtype=np.float64)):
-        sel &= np.abs(f - g) > h
-    if np.count_nonzero(sel) < 8:
-        return global_noise_psd
-    med = float(np.median(spectrum.psd[sel]))
-    nu = 2.0 * effective_averages(spectrum)
-    bias = math.log(2.0) if nu <= 2 else (1.0 - 2.0 / (9.0 * nu)) ** 3
-    return max(global_noise_psd, med / bias)
-
-
-def line_level(spectrum: Spectrum, freq_hz: float, noise_psd: float) -> LineLevel:
-    """Integrate the spectrum over a line's main lobe at ``freq_hz`` and remove the noise.
-
-    Parameters
-    ----------
-    spectrum : Spectrum
-        Averaged PSD (FS²/Hz) with bin spacing and ENBW.
-    freq_hz : float
-        Centre of the line, Hz offset (need not be on a bin).
-    noise_psd : float
-        Noise PSD to subtract, FS²/Hz.
-
-    Returns
-    -------
-    LineLevel
-        Power (FS²), its noise sigma, and whether it is detected; an upper bound when not.
-
-    Notes
-    -----
-    A line's power is its PSD integrated over the window's main lobe (DESIGN.md
-    section 3; Heinzel et al. 2002, section 9: sum of PSD x bin width equals power).
-    Noise in the ``n`` integrated bins has standard deviation
-    ``N0 * bin * sqrt(n * c / K)`` with ``c = ENBW / bin`` the correlation length of
-    neighbouring bins and ``K`` the number of averages; the line's own power beats with
-    the noise, adding variance ``2 P N0 ENBW / K``. An undetected line (below
-    ``DETECTION_SIGMAS`` noise sigmas) is bounded by ``max(P, 0) + 3 sigma``.
-    """
-    f = spectrum.freqs_hz
-    h = line_half_width_hz(spectrum)
-    sel = np.abs(f - freq_hz) <= h
-    n = int(np.count_nonzero(sel))
-    if n == 0:
-        return LineLevel(freq_hz, math.nan, math.nan, noise_psd, False, math.nan)
-    b = spectrum.bin_hz
-    total = float(np.sum(spectrum.psd[sel])) * b
-    power = total - noise_psd * n * b
-    k = effective_averages(spectrum)
-    corr = max(1.0, spectrum.enbw_hz / b)
-    sigma_noise = noise_psd * b * math.sqrt(n * corr / k)
-    sigma = math.sqrt(sigma_noise**2 + 2.0 * max(power, 0.0) * noise_psd * spectrum.enbw_hz / k)
-    detected = power > DETECTION_SIGMAS * sigma_noise and power > 0
-    bound = power if detected else max(power, 0.0) + DETECTION_SIGMAS * sigma_noise
-    return LineLevel(freq_hz, power, sigma, noise_psd, bool(detected), bound)
-
-
-def _refine_frequency(spectrum: Spectrum, freq_hz: float, noise_psd: float) -> float:
-    """Power-weighted centroid of the main lobe around ``freq_hz`` (symmetric windows)."""
-    f = spectrum.freqs_hz
-    h = line_half_width_hz(spectrum)
-    sel = np.abs(f - freq_hz) <= h
-    w = np.clip(spectrum.psd[sel] - noise_psd, 0.0, None)
-    if not np.any(w > 0):
-        return freq_hz
-    return float(np.sum(f[sel] * w) / np.sum(w))
-
-
-def find_lines(
-    spectrum: Spectrum,
-    noise_psd: float,
-    min_snr_db: float = 10.0,
-    max_lines: int = 64,
-) -> list[float]:
-    """Frequencies (Hz offset) of discrete lines, strongest first.
-
-    A line is a local maximum of the PSD that stands ``min_snr_db`` above the noise
-    floor and is the highest bin within one line half-width; its frequency is refined
-    by the centroid of its main lobe. Peaks closer than two half-widths to a stronger
-    one are dropped (they are its main lobe).
-    """
-    psd = spectrum.psd
-    if psd.size < 3:
-        return []
-    thr = noise_psd * 10.0 ** (min_snr_db / 10.0)
-    interior = (psd[1:-1] >= psd[:-2]) & (psd[1:-1] > psd[2:]) & (psd[1:-1] > thr)
-    idx = np.flatnonzero(interior) + 1
-    idx = idx[np.argsort(psd[idx])[::-1]]
-    h = line_half_width_hz(spectrum)
-    f = spectrum.freqs_hz
-    kept: list[float] = []
-    for i in idx:
-        fi = float(f[i])
-        if any(abs(fi - g) < 2.0 * h for g in kept):
-            continue
-        kept.append(fi)
-        if len(kept) >= max_lines:
-            break
-    return [_refine_frequency(spectrum, g, noise_psd) for g in kept]
+    """Half width of the band a line's power is integrated over, Hz (dsp lobe half-width)."""
+    return lobe_half_width_bins(spectrum) * spectrum.bin_hz
 
 
 # --------------------------------------------------------------------------------------
@@ -312,8 +148,8 @@ class TonePair:
 
     f1_hz: float
     f2_hz: float
-    p1: LineLevel
-    p2: LineLevel
+    p1: LinePower
+    p2: LinePower
 
     @property
     def spacing_hz(self) -> float:
@@ -337,7 +173,7 @@ class ProductLevel:
     order: int
     side: str
     """"lower" (below f1) or "upper" (above f2)."""
-    line: LineLevel
+    line: LinePower
     level_dbc: float
     """Level re the mean tone power, dB (a bound when not detected)."""
     collides_with: tuple[str, ...] = ()
@@ -368,25 +204,28 @@ class TwoToneResult:
 def find_tone_pair(spectrum: Spectrum, noise_psd: float, max_imbalance_db: float = 20.0) -> TonePair:
     """Find the two test tones: the strongest line and the strongest other line.
 
+    Lines are found by :func:`iqscope.dsp.find_peaks` (6 noise sigmas) and measured by
+    :func:`iqscope.dsp.line_power` (main-lobe integral, noise removed).
+
     Raises
     ------
     ValueError
-        When fewer than two lines stand 10 dB above the noise, or the second is more
-        than ``max_imbalance_db`` below the first (not a two-tone signal).
+        When fewer than two lines stand out of the noise, or the second is more than
+        ``max_imbalance_db`` below the first (not a two-tone signal).
     """
-    lines = find_lines(spectrum, noise_psd, max_lines=8)
-    if len(lines) < 2:
-        raise ValueError("fewer than two lines stand 10 dB above the noise: not a two-tone signal")
-    levels = [line_level(spectrum, g, noise_psd) for g in lines]
-    order = sorted(range(len(lines)), key=lambda i: levels[i].power, reverse=True)
-    a, b = order[0], order[1]
-    ratio_db = 10.0 * math.log10(levels[a].power / max(levels[b].power, 1e-300))
+    peaks = find_peaks(spectrum, noise_psd, max_peaks=2)
+    if len(peaks) < 2:
+        raise ValueError("fewer than two lines stand out of the noise: not a two-tone signal")
+    a, b = (line_power(spectrum, pk.frequency_hz, noise_psd, search_bins=1) for pk in peaks)
+    if not (a.detected and b.detected):
+        raise ValueError("fewer than two lines stand out of the noise: not a two-tone signal")
+    ratio_db = 10.0 * math.log10(max(a.power, b.power) / min(a.power, b.power))
     if ratio_db > max_imbalance_db:
         raise ValueError(
             f"the second-strongest line is {ratio_db:.1f} dB below the strongest: not a two-tone signal"
         )
-    (fa, la), (fb, lb) = sorted([(lines[a], levels[a]), (lines[b], levels[b])])
-    return TonePair(fa, fb, la, lb)
+    lo, hi = sorted((a, b), key=lambda lp: lp.frequency_hz)
+    return TonePair(lo.frequency_hz, hi.frequency_hz, lo, hi)
 
 
 def measure_two_tone(
@@ -438,21 +277,17 @@ def measure_two_tone(
     h = line_half_width_hz(spectrum)
     nyq = spectrum.sample_rate_hz / 2.0
     warnings: list[str] = []
-    known = [tones.f1_hz, tones.f2_hz]
     all_products: list[tuple[int, str, float]] = []
     for order in range(3, max_order + 1, 2):
         lo, hi = product_offsets_hz(tones.f1_hz, tones.f2_hz, order)
         all_products += [(order, "lower", lo), (order, "upper", hi)]
-    known += [f for (_, _, f) in all_products]
     products: list[ProductLevel] = []
     for order, side, freq in all_products:
         if abs(freq) > nyq - h:
             warnings.append(f"IMD{order} {side} product at {freq:.0f} Hz lies outside the recorded band")
             continue
-        others = [g for g in known if abs(g - freq) > 1e-9]
-        n0 = local_noise_psd(spectrum, freq, noise_psd, exclude_hz=others)
-        line = line_level(spectrum, freq, n0)
-        level = 10.0 * math.log10(max(line.reported, 1e-300) / ref)
+        line = line_power(spectrum, freq, noise_psd, search_bins=1)
+        level = 10.0 * math.log10(max(line.level, 1e-300) / ref)
         products.append(
             ProductLevel(order, side, line, level, _collisions(freq, tones, carrier_offset_hz, h))
         )
@@ -508,9 +343,9 @@ def two_tone_figures(ctx: AnalysisContext) -> FigureSet:
     out.markers["tone1"] = t.f1_hz
     out.markers["tone2"] = t.f2_hz
     for p in res.products:
-        out.markers[f"imd{p.order}_{p.side}"] = p.line.freq_hz
+        out.markers[f"imd{p.order}_{p.side}"] = p.line.frequency_hz
 
-    bal_sigma = math.hypot(t.p1.sigma_db(), t.p2.sigma_db())
+    bal_sigma = math.hypot(level_sigma_db(t.p1), level_sigma_db(t.p2))
     out.measurements["tone_balance_db"] = Measurement(
         value=t.balance_db,
         unit="dB",
@@ -536,7 +371,7 @@ def two_tone_figures(ctx: AnalysisContext) -> FigureSet:
             continue
         sides = {
             p.side: {
-                "freq_hz": p.line.freq_hz,
+                "freq_hz": p.line.frequency_hz,
                 "level_dbc": p.level_dbc,
                 "detected": p.line.detected,
                 "collides_with": list(p.collides_with),
@@ -545,7 +380,7 @@ def two_tone_figures(ctx: AnalysisContext) -> FigureSet:
             if p.order == order
         }
         limited = not worst.line.detected
-        sigma = math.nan if limited else math.hypot(worst.line.sigma_db(), ref_sigma_db)
+        sigma = math.nan if limited else math.hypot(level_sigma_db(worst.line), ref_sigma_db)
         how = "measured" if not limited else "not above the noise: upper bound"
         caveat = ""
         if worst.collides_with:
@@ -557,11 +392,11 @@ def two_tone_figures(ctx: AnalysisContext) -> FigureSet:
             uncertainty=sigma,
             limited_by_noise=limited,
             bound="upper" if limited else None,
-            note=f"worst IMD{order} product ({worst.side}, {worst.line.freq_hz:.1f} Hz) re one tone's mean power, "
+            note=f"worst IMD{order} product ({worst.side}, {worst.line.frequency_hz:.1f} Hz) re one tone's mean power, "
             f"{how}{caveat}",
             details={"products": sides, "reference_tone_dbfs": _db(t.mean_tone_power)},
         )
-        p_abs = max(worst.line.reported, 1e-300)
+        p_abs = max(worst.line.level, 1e-300)
         db_pep_tones = 10.0 * math.log10(p_abs / pep_tones)
         if pep_env is not None:
             db_pep = 10.0 * math.log10(p_abs / pep_env)
@@ -596,7 +431,7 @@ def two_tone_figures(ctx: AnalysisContext) -> FigureSet:
                 out.artefacts.append(
                     Artefact(
                         kind="dc_line" if "dc (receiver)" in p.collides_with else "iq_image",
-                        offset_hz=p.line.freq_hz,
+                        offset_hz=p.line.frequency_hz,
                         level_dbc=p.level_dbc,
                         note=f"IMD{order} {p.side} product coincides with a receiver artefact; "
                         f"imd{order} figures may be the receiver's",

@@ -36,11 +36,13 @@ from typing import Any, Final, Literal
 import numpy as np
 from scipy import stats
 
+from ..dsp._lines import find_peaks, line_power, lobe_half_width_bins
+from ..dsp._noise import spectrum_dof
 from ..dsp._types import Spectrum
 from ._context import AnalysisContext, FigureSet
 from ._result import Artefact, Measurement, failed
 from .designator import occupied_bandwidth_from_spectrum
-from .imd import effective_averages, line_half_width_hz, line_level, local_noise_psd
+from .imd import level_sigma_db, line_half_width_hz
 
 __all__ = [
     "Domain",
@@ -170,11 +172,12 @@ def find_spurs(
 
     Notes
     -----
-    The spectrum is integrated over a line's main lobe at every bin (a moving sum, so
-    the result does not depend on where the line falls between bins), the local noise
-    is removed, and local maxima above a chi-square threshold chosen for a 1 %
-    family-wise false-alarm probability over the searched band are kept. Each kept line
-    is measured as in :func:`iqscope.measure.imd.line_level`.
+    Candidate lines are the spectrum's peaks (:func:`iqscope.dsp.find_peaks`, lobe power
+    above the Gaussian sigma multiple of a 1 % family-wise false-alarm probability over
+    the searched band, Bonferroni). Each is measured with :func:`iqscope.dsp.line_power`
+    (main-lobe integral, local floor removed) and kept when its power also exceeds the
+    chi-square threshold of :func:`detection_threshold_factor` (stricter when few
+    averages were taken).
     """
     lo, hi = sorted(necessary_band_hz)
     bn = hi - lo
@@ -185,44 +188,30 @@ def find_spurs(
     f = spectrum.freqs_hz
     b = spectrum.bin_hz
     h = line_half_width_hz(spectrum)
-    half = max(1, int(round(h / b)))
-    n_int = 2 * half + 1
-    kernel = np.ones(n_int)
-    integrated = np.convolve(spectrum.psd, kernel, mode="same") * b
+    n_int = 2 * lobe_half_width_bins(spectrum) + 1
+    k = spectrum_dof(spectrum)
     corr = max(1.0, spectrum.enbw_hz / b)
-    k = effective_averages(spectrum)
     dof = 2.0 * k * n_int / corr
-    outside = np.abs(f - centre) > bn / 2 + h
     # Bins near the recording's edges see the anti-alias filter roll-off: skip them.
     nyq = spectrum.sample_rate_hz / 2.0
     inband = np.abs(f) < nyq - 2 * h
-    search = outside & inband
+    search = (np.abs(f - centre) > bn / 2 + h) & inband
     n_tests = max(1, int(np.count_nonzero(search) * b / max(2.0 * h, b)))
     thr = detection_threshold_factor(n_tests, dof)
     spur_dom = (np.abs(f - centre) > boundary) & inband
     searched_spurious = float(np.count_nonzero(spur_dom)) * b
-
-    # Threshold against the global floor first (cheap), then confirm with the local floor.
-    cand = search & (integrated > thr * noise_psd * n_int * b)
-    cand[1:-1] &= (integrated[1:-1] >= integrated[:-2]) & (integrated[1:-1] > integrated[2:])
-    cand[0] = cand[-1] = False
-    idx = np.flatnonzero(cand)
-    idx = idx[np.argsort(integrated[idx])[::-1]][:256]
-    strong: list[float] = []
+    # Gaussian sigma multiple of the same family-wise false-alarm rate (find_peaks' test);
+    # the chi-square threshold below is the stricter one when few averages were taken.
+    z = float(stats.norm.isf(FALSE_ALARM_PROBABILITY / n_tests))
+    peaks = find_peaks(spectrum, noise_psd, max_peaks=256, min_snr_sigmas=z)
     lines: list[SpurLine] = []
-    peak_freqs = [float(f[i]) for i in idx]
-    for i in idx:
-        fi = float(f[i])
-        if any(abs(fi - g) < 2.0 * h for g in strong):
+    for pk in peaks:
+        if not search[pk.index]:
             continue
-        f_ref = _centroid(spectrum, fi, h, noise_psd)
-        n0 = local_noise_psd(spectrum, f_ref, noise_psd, exclude_hz=[g for g in peak_freqs if abs(g - fi) > 2 * h])
-        if integrated[i] <= thr * n0 * n_int * b:
+        line = line_power(spectrum, pk.frequency_hz, noise_psd, search_bins=1)
+        if not line.detected or line.power <= (thr - 1.0) * line.floor_psd * n_int * b:
             continue
-        line = line_level(spectrum, f_ref, n0)
-        if not line.power > 0:
-            continue
-        strong.append(fi)
+        f_ref = line.frequency_hz
         level = 10.0 * math.log10(line.power / reference_power)
         dom: Domain = "spurious" if abs(f_ref - centre) > boundary else "out-of-band"
         artefact = _artefact(f_ref, line.power, h, lo, hi, spectrum, noise_psd)
@@ -234,7 +223,7 @@ def find_spurs(
                 power=line.power,
                 level_dbc=level,
                 level_dbm=None if dbfs_to_dbm_db is None else dbfs + dbfs_to_dbm_db,
-                uncertainty_db=line.sigma_db(),
+                uncertainty_db=level_sigma_db(line),
                 domain=dom,
                 artefact=artefact,
             )
@@ -247,13 +236,6 @@ def find_spurs(
     return SpurSearch(tuple(lines), centre, bn, boundary, searched_spurious, bound_dbc)
 
 
-def _centroid(spectrum: Spectrum, fi: float, h: float, noise_psd: float) -> float:
-    f = spectrum.freqs_hz
-    sel = np.abs(f - fi) <= h
-    w = np.clip(spectrum.psd[sel] - noise_psd, 0.0, None)
-    return float(np.sum(f[sel] * w) / np.sum(w)) if np.any(w > 0) else fi
-
-
 def _artefact(
     freq: float, power: float, h: float, lo: float, hi: float, spectrum: Spectrum, noise_psd: float
 ) -> str | None:
@@ -263,7 +245,7 @@ def _artefact(
     mirror = -freq
     if lo - h <= mirror <= hi + h:
         return "iq_image"
-    image_of = line_level(spectrum, mirror, noise_psd)
+    image_of = line_power(spectrum, mirror, noise_psd, search_bins=1)
     if image_of.detected and image_of.power > 10.0 * power:
         return "iq_image"
     return None
