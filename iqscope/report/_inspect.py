@@ -28,10 +28,10 @@ def format_hz(value: float | None) -> str:
     return f"{value:.6g} Hz"
 
 
-def format_db(value: float | None, unit: str = "dBFS") -> str:
-    """A level to 0.01 dB, or ``-inf`` style text when there is none."""
+def format_db(value: float | None, unit: str = "dBFS", none: str = "no signal") -> str:
+    """A level to 0.01 dB, or ``none`` when there is no finite level (zero power)."""
     if value is None:
-        return f"no signal ({unit})"
+        return none
     return f"{value:.2f} {unit}"
 
 
@@ -55,7 +55,7 @@ def inspect_table(data: Mapping[str, Any]) -> Table:
         ("duration", _duration(float(data["duration_s"]))),
         ("peak", format_db(data.get("peak_dbfs"))),
         ("mean power", format_db(data.get("mean_dbfs"))),
-        ("DC offset", format_db(data.get("dc_offset_dbfs"))),
+        ("DC offset", format_db(data.get("dc_offset_dbfs"), none="none")),
         ("clipped", "n/a" if clipped is None else f"{100.0 * clipped:.4g} % of samples"),
     ]
     nonfinite = data.get("nonfinite_samples", 0)
