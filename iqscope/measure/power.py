@@ -110,7 +110,7 @@ def watts_from_dbm(level_dbm: float) -> float:
     """
     if not math.isfinite(level_dbm):
         raise ValueError(f"{level_dbm=} must be finite")
-    return 1e-3 * 10.0 ** (level_dbm / 10.0)
+    return float(1e-3 * 10.0 ** (level_dbm / 10.0))
 
 
 def _db(x: float) -> float:
