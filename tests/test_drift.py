@@ -1,0 +1,370 @@
+"""Tests of the drift tracker and figures (iqscope.measure.drift).
+
+Test signals are built with plain numpy: phase = 2 pi * integral of f dt (cumulative sum
+of the instantaneous frequency / fs), so the truth is known in closed form:
+- linear drift f(t) = f0 + D t: regression slope D, block-mean peak-to-peak D (T_rec - T_block);
+- warm-up f(t) = f_end + A exp(-t / tau): the frequency is within +/-b of f_end after
+  t = tau ln(A / b);
+- random walk: the exact block-mean frequency is (phase_end - phase_start) / (2 pi T).
+External checks: Allan deviation of a linear drift = D tau / sqrt(2) (NIST SP 1065,
+REFERENCES.md item 9); per-block sigma from the Rife–Boorstyn bound (REFERENCES.md item 8).
+"""
+
+from __future__ import annotations
+
+import math
+
+import numpy as np
+import pytest
+
+from iqscope.errors import MeasurementError, UsageError
+from iqscope.io import ArrayRecording
+from iqscope.measure._analysis import SignalInfo
+from iqscope.measure._context import AnalysisContext, AnalysisRequest
+from iqscope.measure.drift import (
+    LinePlan,
+    LineTracker,
+    analyse_drift,
+    choose_block_s,
+    drift_figures,
+    drift_measurements,
+    resolve_frequency,
+    survey_spectrum,
+    track_frequency,
+)
+
+
+def synth(
+    freq_hz: np.ndarray,
+    fs: float,
+    amp: float = 0.3,
+    noise_rms: float = 0.01,
+    seed: int = 1,
+    extra: np.ndarray | None = None,
+) -> np.ndarray:
+    """A complex tone following ``freq_hz`` (per sample) plus complex white noise.
+
+    ``noise_rms`` is the total complex noise standard deviation per sample.
+    """
+    rng = np.random.default_rng(seed)
+    phase = 2 * np.pi * np.cumsum(freq_hz) / fs
+    x = amp * np.exp(1j * phase)
+    if extra is not None:
+        x = x + extra
+    n = freq_hz.size
+    x = x + noise_rms / math.sqrt(2) * (rng.standard_normal(n) + 1j * rng.standard_normal(n))
+    return x.astype(np.complex64)
+
+
+def block_means(freq_hz: np.ndarray, block_n: int, parabolic: bool = False) -> np.ndarray:
+    """Mean frequency of each whole block (what the tracker should see).
+
+    With ``parabolic`` the mean is weighted as the least-squares slope of the phase
+    weights it: w_k ~ sum_{n > k} (n - mean n), a parabola (Kay 1989, "A fast and accurate
+    single frequency estimator", IEEE Trans. ASSP 37(12), weighted phase-difference form);
+    at high SNR the periodogram maximum equals that slope. For a linear drift both means
+    agree.
+    """
+    nb = freq_hz.size // block_n
+    blocks = freq_hz[: nb * block_n].reshape(nb, block_n)
+    if not parabolic:
+        return blocks.mean(axis=1)
+    c = np.arange(block_n) - (block_n - 1) / 2
+    w = np.cumsum(c[::-1])[::-1]  # sum over n >= k of centred time
+    w = np.concatenate((w[1:], [0.0]))  # phase[k] holds f[0..k]: sum over n > k
+    w = w / w.sum()
+    return blocks @ w
+
+
+class TestAcceptance:
+    def test_five_minute_linear_cw(self) -> None:
+        """Issue 5 acceptance: 5 min CW drifting linearly a few Hz/min -> slope within
+        0.1 Hz/min, peak-to-peak within 1 Hz; the stated slope uncertainty covers the error
+        (3 sigma); ADEV of the track equals D tau / sqrt(2) (SP 1065 / REFERENCES.md 9)."""
+        fs, dur = 4000.0, 300.0
+        n = int(fs * dur)
+        t = np.arange(n) / fs
+        d_hz_per_min = 3.137  # non-round
+        f = 523.71 + d_hz_per_min / 60.0 * t
+        rf_centre = 7.0401e6
+        rec = ArrayRecording(synth(f, fs), fs, center_frequency_hz=rf_centre)
+        res = analyse_drift(rec)
+        m = res.measurements
+        slope = m["drift_hz_per_min"]
+        assert slope.value == pytest.approx(d_hz_per_min, abs=0.1)
+        assert abs(slope.value - d_hz_per_min) <= 3 * slope.uncertainty + 1e-4
+        T = res.track.block_s
+        true_pp = d_hz_per_min / 60.0 * (dur - T)
+        assert m["drift_peak_to_peak_hz"].value == pytest.approx(true_pp, abs=1.0)
+        assert m["drift_peak_to_peak_hz"].limited_by_noise is False
+        # worst 120-s window of a linear drift: D * (120 s - one block)
+        assert m["drift_worst_window_hz"].value == pytest.approx(d_hz_per_min / 60 * (120 - T), abs=0.1)
+        # offset: mean frequency of the line from the capture centre
+        assert m["frequency_offset_hz"].value == pytest.approx(float(np.mean(f)), abs=0.05)
+        # a linear drift never settles
+        assert m["warmup_settling_s"].value is None
+        # ADEV: y = D t / f_RF, sigma = (D / f_RF) tau / sqrt(2) (blocks average exactly)
+        adev = m["allan_deviation"]
+        d_frac = d_hz_per_min / 60.0 / (rf_centre + float(np.mean(f)))
+        taus = np.asarray(adev.details["tau_s"])
+        devs = np.asarray(adev.details["adev"])
+        big = taus >= 1.0  # above ~1 s the estimator noise is < 1 % of the drift term
+        assert devs[big] == pytest.approx(d_frac * taus[big] / math.sqrt(2), rel=0.02)
+
+    def test_stated_block_sigma_matches_scatter(self) -> None:
+        """Per-block sigma is the Cramér–Rao bound at the estimated SNR (Rife & Boorstyn
+        1974); the rect-window ML estimator attains it, so (measured - true)/sigma has RMS
+        near 1 (0.8..1.25 for ~2400 blocks)."""
+        fs, dur = 2000.0, 120.0
+        n = int(fs * dur)
+        t = np.arange(n) / fs
+        f = -311.3 + 0.013 * t
+        rec = ArrayRecording(synth(f, fs, noise_rms=0.3), fs)
+        tr = track_frequency(rec, -311.3, block_s=0.05)
+        truth = block_means(f, int(round(0.05 * fs)))
+        z = (tr.frequency_hz - truth) / tr.sigma_hz
+        assert tr.valid.all()
+        assert float(np.sqrt(np.mean(z**2))) == pytest.approx(1.0, abs=0.25)
+
+
+class TestSynthesizedDrifts:
+    def test_warmup_exponential_settling(self) -> None:
+        """Key-down at 20 s, then f = f_end + A exp(-(t - 20)/tau). Settling time within a
+        1 Hz band: tau ln(A / 1 Hz) after key-down (closed form), within one block."""
+        fs, dur, t_key = 2000.0, 400.0, 20.0
+        n = int(fs * dur)
+        t = np.arange(n) / fs
+        a_hz, tau = 37.3, 41.7
+        f = 250.0 + a_hz * np.exp(-np.clip(t - t_key, 0, None) / tau)
+        x = synth(f, fs)
+        rng = np.random.default_rng(3)
+        key_n = int(t_key * fs)
+        x[:key_n] = (0.01 / math.sqrt(2) * (rng.standard_normal(key_n) + 1j * rng.standard_normal(key_n)))
+        rec = ArrayRecording(x, fs)
+        res = analyse_drift(rec, carrier_hz=280.0, block_s=0.25)
+        st = res.measurements["warmup_settling_s"]
+        # the band is about the measured final value, which still holds the exponential's
+        # small remainder: f_end - 250 Hz = final_offset_hz + 280 - 250 (~0.01 Hz)
+        rest = st.details["final_offset_hz"] + 280.0 - 250.0
+        assert 0 <= rest < 0.05
+        expected = tau * math.log(a_hz / (1.0 + rest))  # ~150.5 s
+        assert res.details["key_down_s"] == pytest.approx(t_key, abs=0.25)
+        assert st.value == pytest.approx(expected, abs=res.track.block_s)
+        # the block mean of an exponential lags its centre value by < 0.01 Hz here
+        assert res.measurements["drift_peak_to_peak_hz"].value == pytest.approx(a_hz, abs=0.2)
+
+    def test_random_walk(self) -> None:
+        """Random-walk frequency (white FM steps): every block's estimate agrees with the
+        parabolic-weighted block mean within its stated sigma (RMS of z in 0.75..1.3), and the
+        peak-to-peak and slope agree with those of the true block means within the stated
+        uncertainties."""
+        fs, dur = 2000.0, 200.0
+        n = int(fs * dur)
+        rng = np.random.default_rng(11)
+        steps = rng.standard_normal(int(dur * 100)) * 0.071  # Hz per 10 ms
+        coarse = 412.9 + np.cumsum(steps)
+        f = np.repeat(coarse, n // coarse.size)
+        rec = ArrayRecording(synth(f, fs, noise_rms=0.05, seed=12), fs)
+        res = analyse_drift(rec, block_s=0.25, carrier_hz=float(f[0]))
+        tr = res.track
+        truth = block_means(f, int(0.25 * fs), parabolic=True)
+        z = (tr.frequency_hz - truth) / tr.sigma_hz
+        assert float(np.sqrt(np.mean(z**2))) == pytest.approx(1.0, abs=0.3)
+        m = res.measurements
+        true_pp = float(truth.max() - truth.min())
+        assert m["drift_peak_to_peak_hz"].value == pytest.approx(true_pp, abs=4 * m["drift_peak_to_peak_hz"].uncertainty)
+        tt = tr.times_s
+        true_slope = np.polyfit(tt, truth, 1)[0] * 60
+        assert m["drift_hz_per_min"].value == pytest.approx(true_slope, abs=3 * m["drift_hz_per_min"].uncertainty)
+        # the random walk makes residuals correlated: the SE is widened accordingly
+        assert m["drift_hz_per_min"].details["residual_lag1_correlation"] > 0.5
+
+    def test_reference_line_cancels_common_drift(self) -> None:
+        """Receiver drift r(t) (linear + a slow wobble) shifts both lines; the transmitter
+        line has its own 0.77 Hz/min. With the stable line as reference the slope is
+        0.77 Hz/min within its stated uncertainty; without it, 0.77 + 2.9."""
+        fs, dur = 4000.0, 180.0
+        n = int(fs * dur)
+        t = np.arange(n) / fs
+        rx = 2.9 / 60 * t + 0.4 * np.sin(2 * np.pi * t / 47.0)
+        tx = 700.3 + 0.77 / 60 * t + rx
+        ref_line = -1300.7 + rx
+        rng = np.random.default_rng(4)
+        stable = 0.1 * np.exp(1j * (2 * np.pi * np.cumsum(ref_line) / fs + rng.uniform(0, 6)))
+        x = synth(tx, fs, extra=stable)
+        rec = ArrayRecording(x, fs, center_frequency_hz=10.0e6)
+        plain = analyse_drift(rec, carrier_hz=700.0)
+        rel = analyse_drift(rec, carrier_hz=700.0, reference_hz=-1300.0)
+        s_plain = plain.measurements["drift_hz_per_min"]
+        s_rel = rel.measurements["drift_hz_per_min"]
+        assert s_plain.value == pytest.approx(0.77 + 2.9, abs=0.1)
+        assert abs(s_rel.value - 0.77) <= 3 * s_rel.uncertainty
+        assert s_rel.value == pytest.approx(0.77, abs=0.02)
+        assert "receiver's own drift removed" in s_rel.note
+        assert "Includes the receiver" in s_plain.note
+        # absolute reference (a standard at exactly 10 MHz - 1300.7 Hz): the receiver's
+        # mean error (mean of rx) is removed from the offset too.
+        abs_ref = analyse_drift(rec, carrier_hz=700.0, reference_hz=10.0e6 - 1300.7)
+        off = abs_ref.measurements["frequency_offset_hz"]
+        true_tx_off = float(np.mean(tx - rx)) - 700.0
+        assert off.value == pytest.approx(true_tx_off, abs=0.01)
+        assert "removed" in off.note
+
+    def test_dsb_pair_cancels_audio_oscillator_drift(self) -> None:
+        """Tone-modulated DSB: lines at c +/- (fa + a(t)). Averaging the two lines follows
+        the carrier c(t) only (1.3 Hz/min), not the audio drift (0.5 Hz/min)."""
+        fs, dur = 8000.0, 60.0
+        n = int(fs * dur)
+        t = np.arange(n) / fs
+        c = 150.2 + 1.3 / 60 * t
+        audio = 1000.0 + 0.5 / 60 * t
+        x = synth(c + audio, fs, amp=0.2, extra=None)
+        lower = synth(c - audio, fs, amp=0.2, noise_rms=0.0, seed=2)
+        rec = ArrayRecording(x + lower, fs)
+        res = analyse_drift(rec, mode="dsb", carrier_hz=150.0)
+        assert res.track.plan.kind == "sideband pair"
+        assert res.track.lines_hz.shape[1] == 2
+        m = res.measurements
+        assert m["drift_hz_per_min"].value == pytest.approx(1.3, abs=0.02)
+        assert m["frequency_offset_hz"].value == pytest.approx(float(np.mean(c)) - 150.0, abs=0.02)
+
+    def test_auto_finds_pair_without_carrier(self) -> None:
+        fs = 8000.0
+        t = np.arange(int(fs * 20)) / fs
+        x = synth(np.full(t.size, 1200.0), fs, amp=0.2) + synth(np.full(t.size, -800.0), fs, amp=0.2, noise_rms=0, seed=3)
+        res = analyse_drift(ArrayRecording(x, fs))
+        assert res.track.plan.kind == "line pair"
+        assert res.measurements["frequency_offset_hz"].value == pytest.approx(200.0, abs=0.01)
+
+    def test_ssb_tone_gives_carrier_offset(self) -> None:
+        """USB with a 1000 Hz tone, carrier nominally at 0 Hz but really at +3.21 Hz."""
+        fs = 8000.0
+        t = np.arange(int(fs * 30)) / fs
+        x = synth(np.full(t.size, 1003.21), fs)
+        res = analyse_drift(ArrayRecording(x, fs), mode="usb", carrier_hz=0.0, tone_hz=1000.0)
+        assert res.track.plan.kind == "tone"
+        assert res.measurements["frequency_offset_hz"].value == pytest.approx(3.21, abs=0.01)
+        no_tone = analyse_drift(ArrayRecording(x, fs), mode="usb", carrier_hz=0.0)
+        assert no_tone.measurements["frequency_offset_hz"].value is None
+        assert "--tone" in no_tone.measurements["frequency_offset_hz"].note
+
+    def test_stable_line_is_flagged_as_noise_limited(self) -> None:
+        """A perfectly stable line: peak-to-peak is noise only -> flagged as an upper bound."""
+        fs = 4000.0
+        t = np.arange(int(fs * 60)) / fs
+        res = analyse_drift(ArrayRecording(synth(np.full(t.size, 321.0), fs, noise_rms=0.2), fs))
+        pp = res.measurements["drift_peak_to_peak_hz"]
+        assert pp.limited_by_noise and pp.bound == "upper"
+        assert res.measurements["warmup_settling_s"].value == pytest.approx(0.0, abs=res.track.block_s)
+        assert res.measurements["drift_hz_per_min"].value == pytest.approx(0.0, abs=3 * res.measurements["drift_hz_per_min"].uncertainty)
+
+
+class TestTracker:
+    def test_push_in_odd_chunks_equals_whole(self, rng: np.random.Generator) -> None:
+        fs = 2000.0
+        t = np.arange(20_000) / fs
+        x = synth(100.0 + 0.5 * t, fs)
+        plan = LinePlan((100.0,), 0.0, "carrier", "test", snr=100.0)
+        a = LineTracker(fs, plan, block_s=0.5, span_hz=20.0)
+        b = LineTracker(fs, plan, block_s=0.5, span_hz=20.0)
+        a.push(x)
+        pos = 0
+        while pos < x.size:
+            k = int(rng.integers(1, 3000))
+            b.push(x[pos : pos + k])
+            pos += k
+        assert np.array_equal(a.track().frequency_hz, b.track().frequency_hz)
+        assert a.track().n_blocks == 20
+
+    def test_follows_line_beyond_initial_span(self) -> None:
+        """A 40 Hz/min drift over 3 min (120 Hz) is followed with a 10 Hz span."""
+        fs = 2000.0
+        t = np.arange(int(fs * 180)) / fs
+        f = -200.0 + 40.0 / 60 * t
+        tr = track_frequency(ArrayRecording(synth(f, fs), fs), -200.0, block_s=0.25, span_hz=10.0)
+        assert tr.valid.all()
+        assert tr.frequency_hz[-1] == pytest.approx(block_means(f, 500)[-1], abs=0.01)
+
+    def test_progress_reaches_total(self) -> None:
+        fs = 2000.0
+        x = synth(np.full(10_000, 100.0), fs)
+        seen: list[tuple[int, int]] = []
+        track_frequency(ArrayRecording(x, fs), 100.0, block_s=0.5, progress=lambda d, n: seen.append((d, n)))
+        assert seen[-1][0] == seen[-1][1] == 10_000
+
+    def test_choose_block(self) -> None:
+        # strong line at 48 kS/s: the shortest octave giving 0.02 Hz
+        t = choose_block_s(100.0, 48_000.0, 3600.0)
+        assert t in (0.0625, 0.125)
+        # weak line (-20 dB per sample): longer blocks
+        assert choose_block_s(0.01, 48_000.0, 3600.0) >= 0.5
+        with pytest.raises(MeasurementError, match="too short"):
+            choose_block_s(1e-6, 48_000.0, 2.0)
+
+
+class TestEdgeCases:
+    def test_pure_noise_raises(self, rng: np.random.Generator) -> None:
+        x = (rng.standard_normal(40_000) + 1j * rng.standard_normal(40_000)) * 0.01
+        with pytest.raises(MeasurementError, match="nothing to track"):
+            analyse_drift(ArrayRecording(x, 4000.0))
+
+    def test_too_short_raises(self) -> None:
+        x = synth(np.full(400, 100.0), 4000.0)
+        with pytest.raises(MeasurementError):
+            analyse_drift(ArrayRecording(x, 4000.0))
+
+    def test_resolve_frequency(self) -> None:
+        assert resolve_frequency(1000.0, 48_000.0, None, "--carrier") == (1000.0, False)
+        assert resolve_frequency(14_100_500.0, 48_000.0, 14.1e6, "--carrier") == (500.0, True)
+        with pytest.raises(UsageError, match="centre"):
+            resolve_frequency(14_100_500.0, 48_000.0, None, "--carrier")
+        with pytest.raises(UsageError, match="outside"):
+            resolve_frequency(15e6, 48_000.0, 14.1e6, "--carrier")
+
+    def test_figures_on_too_few_blocks_are_null(self) -> None:
+        fs = 2000.0
+        x = synth(np.full(20_000, 100.0), fs)
+        tr = track_frequency(ArrayRecording(x, fs), 100.0, block_s=2.0)  # 5 blocks
+        res = drift_measurements(tr)
+        assert all(m.value is None for m in res.measurements.values())
+        assert res.warnings
+
+
+def _ctx(rec: ArrayRecording, mode: str, carrier: float | None, **req: object) -> AnalysisContext:
+    spec, noise = survey_spectrum(rec)
+    return AnalysisContext(
+        recording=rec,
+        request=AnalysisRequest(mode=mode, **req),  # type: ignore[arg-type]
+        spectrum=spec,
+        signal=SignalInfo(mode, carrier, None if rec.center_frequency_hz is None or carrier is None else rec.center_frequency_hz + carrier),
+        noise_floor_psd=noise,
+        mean_power=0.1,
+        signal_power=0.09,
+        peak_power=0.1,
+    )
+
+
+class TestProvider:
+    def test_provider_adds_figures_and_trace(self) -> None:
+        fs = 4000.0
+        t = np.arange(int(fs * 60)) / fs
+        rec = ArrayRecording(synth(612.0 + 1.7 / 60 * t, fs), fs, center_frequency_hz=3.5e6)
+        out = drift_figures(_ctx(rec, "cw", 612.0, carrier_hz=600.0))
+        assert out.measurements["drift_hz_per_min"].value == pytest.approx(1.7, abs=0.05)
+        # offset from the nominal carrier given with --carrier (600 Hz)
+        assert out.measurements["frequency_offset_hz"].value == pytest.approx(612.0 + 0.85 - 600.0, abs=0.05)
+        assert "allan_deviation" in out.measurements
+        tr = out.traces["frequency"]
+        assert tr.x.size == tr.y.size > 8
+
+    def test_provider_skips_without_line(self, rng: np.random.Generator) -> None:
+        x = ((rng.standard_normal(40_000) + 1j * rng.standard_normal(40_000)) * 0.01).astype(np.complex64)
+        out = drift_figures(_ctx(ArrayRecording(x, 4000.0), "dsb", 0.0))
+        assert out.measurements == {}
+        assert out.warnings and out.warnings[0].startswith("drift not measured")
+
+    def test_provider_skips_short_recording(self) -> None:
+        x = synth(np.full(800, 100.0), 4000.0)
+        out = drift_figures(_ctx(ArrayRecording(x, 4000.0), "cw", 100.0))
+        assert out.measurements == {}
+        assert out.warnings
