@@ -609,8 +609,10 @@ def power_figures(ctx: AnalysisContext) -> FigureSet:
     converted with ``P_dBm = P_dBFS + offset_db`` and ``P_W = 1 mW x 10^(P_dBm / 10)``.
 
     Uncertainty (1 sigma): the calibration's, combined in quadrature with, for the mean
-    power, the noise-floor subtraction; for PEP, the shift the noise's rms amplitude can
-    give the envelope peak, ``20 log10(1 + sqrt(Pn / PEP))``.
+    power, the noise-floor subtraction, ``(10/ln 10) Pn / (P sqrt(M))`` with ``Pn`` the
+    noise power of the whole band and ``M`` the spectrum's averages (conservative); for
+    PEP, the shift the noise's rms amplitude can give the envelope peak,
+    ``20 log10(1 + sqrt(Pn / PEP))``.
 
     References
     ----------
@@ -628,10 +630,12 @@ def power_figures(ctx: AnalysisContext) -> FigureSet:
     sig = ctx.signal_power
     if sig is not None and math.isfinite(sig) and sig > 0:
         mean_dbfs = _db(sig)
-        noise_share = noise_total / sig if sig > 0 else 0.0
-        # Subtracting the noise floor leaves an error of the order of its own estimation
-        # error; count a tenth of the in-band noise share as 1 sigma (at most 1 dB).
-        sub_db = min(1.0, _DB_PER_NEPER_POWER * 0.1 * noise_share)
+        noise_share = noise_total / sig
+        # Subtracting the noise floor leaves its estimation error: with M averaged
+        # periodograms that is at most ~1/sqrt(M) of the noise power, and at most the
+        # whole band's noise was subtracted (conservative; capped at 3 dB).
+        m_avg = max(1, int(ctx.spectrum.n_averages))
+        sub_db = min(3.0, _DB_PER_NEPER_POWER * noise_share / math.sqrt(m_avg))
         sigma = math.hypot(cal.uncertainty_db, sub_db)
         mean_dbm = cal.dbm(mean_dbfs)
         note = f"mean power of the emission (spectrum, noise floor subtracted); {cal_note}"
