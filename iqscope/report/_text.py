@@ -296,5 +296,6 @@ def render_profile_list(profiles: Sequence[LimitsProfile], defaults: Mapping[str
     table.add_column("description")
     for p in profiles:
         modes = [m for m, n in defaults.items() if n == p.name]
-        table.add_row(p.name, ", ".join(modes), p.description)
+        every = bool(modes) and len(modes) == len(defaults)
+        table.add_row(p.name, "every mode" if every else ", ".join(modes), p.description)
     return table

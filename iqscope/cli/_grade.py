@@ -1,0 +1,286 @@
+"""``iqscope grade FILE...``: open, analyse, grade, render. Wiring only.
+
+Output: a text report on stdout (or ``--json``: exactly one JSON object on stdout; one
+file gives the ``iqscope.grade/1`` contract object, several give one
+``iqscope.grade-batch/1`` object holding a contract object per file, see
+``docs/reports.md``). Progress and errors go to stderr. Optional outputs, each written
+atomically and never over an existing file without ``--force``: ``--report FILE.html``
+(one self-contained page for all files), ``--plot DIR`` (PNGs named
+``STEM-spectrum.png``, ``STEM-spectrogram.png``, ``STEM-envelope.png`` ...) and
+``--annotate`` (a new ``STEM.graded.sigmf-meta`` beside each SigMF input).
+
+Exit status: the worst verdict over the files (0 pass, 1 warn, 2 fail), or 3 when a
+file is unusable (the others are still graded and reported).
+"""
+
+from __future__ import annotations
+
+import argparse
+import math
+import sys
+from dataclasses import dataclass
+from pathlib import Path
+from typing import Any
+
+from ..errors import (
+    EXIT_INPUT,
+    EXIT_OK,
+    InputError,
+    IqscopeError,
+    MeasurementError,
+    UsageError,
+)
+
+__all__ = ["register", "run", "MODE_CHOICES", "output_stem"]
+
+#: ``--mode`` choices (DESIGN.md section 4, contract).
+MODE_CHOICES = ("auto", "cw", "am", "dsb", "usb", "lsb", "two-tone")
+
+
+def _hz(text: str) -> float:
+    from ._inspect import parse_hz
+
+    value = parse_hz(text)
+    if not math.isfinite(value):
+        raise argparse.ArgumentTypeError(f"{text!r} is not a finite frequency")
+    return value
+
+
+def _positive_hz(text: str) -> float:
+    value = _hz(text)
+    if value <= 0:
+        raise argparse.ArgumentTypeError(f"{text!r} must be above 0 Hz")
+    return value
+
+
+def _seconds(text: str) -> float:
+    try:
+        value = float(text)
+    except ValueError:
+        raise argparse.ArgumentTypeError(f"{text!r} is not a number of seconds") from None
+    if not math.isfinite(value) or value <= 0:
+        raise argparse.ArgumentTypeError(f"{text!r} must be a positive number of seconds")
+    return value
+
+
+def register(subparsers: Any) -> None:
+    """Add the ``grade`` command."""
+    from . import EXIT_STATUS_HELP, SAFETY_LINE
+
+    p = subparsers.add_parser(
+        "grade",
+        help="measure a transmitter's recording and grade it pass / warn / fail",
+        description="Measure carrier and sideband suppression, bandwidth, IMD, spurs and drift "
+        "of each recording (as the mode allows) and grade every figure against a limits "
+        "profile (--limits; by default the 'home-built' preset, named in the report).",
+        epilog=EXIT_STATUS_HELP + "\n" + SAFETY_LINE,
+        formatter_class=argparse.RawDescriptionHelpFormatter,
+    )
+    p.add_argument("files", nargs="+", metavar="FILE", help="recordings: .sigmf-meta/.sigmf, .wav, .h5, raw")
+    s = p.add_argument_group("signal")
+    s.add_argument("--mode", choices=MODE_CHOICES, default="auto", help="emission mode (default: auto, detects cw/am/dsb)")
+    s.add_argument(
+        "--carrier",
+        metavar="HZ",
+        type=_hz,
+        help="carrier frequency: within +/- fs/2 an offset from the capture centre, else absolute RF",
+    )
+    s.add_argument("--tone", metavar="HZ", type=_positive_hz, help="the test tone's audio frequency (SSB)")
+    s.add_argument("--resolution", metavar="HZ", type=_positive_hz, help="spectrum bin spacing (default: from the signal)")
+    s.add_argument("--reference", metavar="HZ", type=_hz, help="a stable reference line for drift (offset or absolute)")
+    s.add_argument("--drift-window", metavar="S", type=_seconds, default=120.0, help="window for the worst drift excursion, s (default 120)")
+    s.add_argument("--calibration", metavar="FILE", help="calibration from 'iqscope calibrate' (power in dBm and W)")
+    g = p.add_argument_group("limits and output")
+    g.add_argument("--limits", metavar="FILE|NAME", help="limits profile: a TOML file or a preset (iqscope limits list)")
+    g.add_argument("--json", action="store_true", help="print exactly one JSON object on stdout (docs/json.md)")
+    g.add_argument("--report", metavar="FILE", help="write a self-contained HTML report (plots embedded)")
+    g.add_argument("--plot", metavar="DIR", help="write PNG plots into DIR (created if missing)")
+    g.add_argument("--annotate", action="store_true", help="write STEM.graded.sigmf-meta beside each SigMF input")
+    g.add_argument("--force", action="store_true", help="overwrite existing output files")
+    g.add_argument("--quiet", "-q", action="store_true", help="no progress; text output reduced to one line per file")
+    r = p.add_argument_group("reading the input")
+    r.add_argument("--format", metavar="F", help="reader (sigmf, wav, hdf5, raw) or raw datatype (cf32, ci16, ci8, cu8 ...)")
+    r.add_argument("--rate", metavar="HZ", type=_positive_hz, help="sample rate, Hz (overrides the file)")
+    r.add_argument("--center", metavar="HZ", type=_hz, help="centre frequency, Hz (overrides the file)")
+    p.set_defaults(func=run)
+
+
+def output_stem(path: str) -> str:
+    """``bench/dsb40m.sigmf-meta`` -> ``dsb40m``: the base of a recording's output names."""
+    name = Path(path.split(":", 1)[0] if path.count(":") == 1 and not Path(path).exists() else path).name
+    for suffix in (".sigmf-meta", ".sigmf-data", ".sigmf"):
+        if name.endswith(suffix):
+            return name[: -len(suffix)] or "recording"
+    return Path(name).stem or "recording"
+
+
+@dataclass
+class _Failure:
+    path: str
+    error: IqscopeError
+
+    def to_json(self) -> dict[str, Any]:
+        return {"path": self.path, "error": str(self.error), "exit_status": self.error.exit_status}
+
+
+def _stems(files: list[str]) -> list[str]:
+    out: list[str] = []
+    for f in files:
+        stem = output_stem(f)
+        base, n = stem, 2
+        while stem in out:
+            stem = f"{base}-{n}"
+            n += 1
+        out.append(stem)
+    return out
+
+
+def _check_outputs(args: argparse.Namespace, stems: list[str]) -> None:
+    """Refuse before any work when an output exists (without --force) or cannot be made."""
+    from ..io._atomic import check_can_write
+    from ..report._plots import PLOT_NAMES
+
+    if args.report:
+        check_can_write(args.report, force=args.force)
+    if args.plot:
+        folder = Path(args.plot)
+        if folder.exists() and not folder.is_dir():
+            raise UsageError(f"--plot needs a folder, but {folder} is a file")
+        if folder.is_dir():
+            for stem in stems:
+                for name in PLOT_NAMES:
+                    check_can_write(folder / f"{stem}-{name}.png", force=args.force)
+    if args.annotate:
+        from ..report._annotate import annotated_meta_path
+
+        for f in args.files:
+            target = annotated_meta_path(f)
+            if target is not None:
+                check_can_write(target, force=args.force)
+
+
+def run(args: argparse.Namespace) -> int:
+    """Grade every file; return the exit status."""
+    from ..grading import grade, load_limits
+    from ..io import open_recording
+    from ..measure._context import AnalysisRequest
+    from ..report._theme import make_console
+
+    limits = load_limits(args.limits) if args.limits else None
+    stems = _stems(list(args.files))
+    _check_outputs(args, stems)
+    options: dict[str, Any] = {}
+    if args.calibration:
+        from ..measure.power import load_calibration
+
+        options["calibration"] = load_calibration(args.calibration)
+    from ..measure.pipeline import analyse
+
+    err = make_console(stderr=True)
+    out = make_console()
+    show_progress = not args.quiet and err.is_terminal
+    results: list[Any] = []
+    result_stems: list[str] = []
+    failures: list[_Failure] = []
+    several = len(args.files) > 1
+    for path, stem in zip(args.files, stems):
+        try:
+            with open_recording(path, format=args.format, rate=args.rate, center=args.center) as rec:
+                if args.annotate and rec.format != "sigmf":
+                    raise UsageError(f"--annotate needs a SigMF recording; {path} is {rec.format}")
+                from ..report._text import progress_reporter
+
+                with progress_reporter(err, f"grading {Path(path).name}", enabled=show_progress) as progress:
+                    request = AnalysisRequest(
+                        mode=args.mode,
+                        carrier_hz=args.carrier,
+                        tone_hz=args.tone,
+                        resolution_hz=args.resolution,
+                        reference_hz=args.reference,
+                        drift_window_s=args.drift_window,
+                        options=options,
+                        progress=progress,
+                    )
+                    analysis = analyse(rec, request)
+            results.append(grade(analysis, limits))
+            result_stems.append(stem)
+        except (InputError, MeasurementError) as exc:
+            if not several:
+                raise
+            failures.append(_Failure(path, exc))
+            if not args.quiet or not args.json:
+                print(f"iqscope: error: {exc}", file=sys.stderr)
+
+    _print_results(args, results, failures, out)
+    _write_outputs(args, results, result_stems, err)
+
+    if failures:
+        if any(isinstance(f.error, InputError) for f in failures):
+            return EXIT_INPUT
+        return max(f.error.exit_status for f in failures)
+    return max((r.exit_status for r in results), default=EXIT_OK)
+
+
+def _print_results(args: argparse.Namespace, results: list[Any], failures: list[_Failure], out: Any) -> None:
+    from ..report._json import batch_document, dumps
+    from ..report._text import print_grade, render_summary
+    from ..report._theme import is_ascii, verdict_label
+
+    if args.json:
+        if len(args.files) == 1 and results:
+            document = results[0].to_json()
+        else:
+            document = batch_document(results, [f.to_json() for f in failures])
+        sys.stdout.write(dumps(document) + "\n")
+        return
+    if args.quiet:
+        for r in results:
+            sys.stdout.write(f"{r.analysis.recording.path}: {verdict_label(r.overall, ascii_only=True)}\n")
+        return
+    for i, r in enumerate(results):
+        if i:
+            out.print()
+        print_grade(r, out)
+    if len(args.files) > 1:
+        rows = [(r.analysis.recording.path, r.overall, r.profile.name) for r in results]
+        rows += [(f.path, "error", str(f.error)) for f in failures]
+        out.print()
+        out.print(render_summary(rows, ascii_only=is_ascii(out)))
+
+
+def _write_outputs(args: argparse.Namespace, results: list[Any], stems: list[str], err: Any) -> None:
+    if not results:
+        return
+    images: list[dict[str, bytes]] = []
+    if args.plot or args.report:
+        from ..report._plots import render_plots
+
+        images = [render_plots(r) for r in results]
+    if args.plot:
+        from ..io._atomic import atomic_write
+
+        folder = Path(args.plot)
+        folder.mkdir(exist_ok=True)
+        for stem, pngs in zip(stems, images):
+            for name, png in pngs.items():
+                target = folder / f"{stem}-{name}.png"
+                with atomic_write(target, force=args.force) as fh:
+                    fh.write(png)
+                _note(args, err, f"wrote {target}")
+    if args.report:
+        from ..io._atomic import atomic_write_text
+        from ..report._html import render_html
+
+        atomic_write_text(args.report, render_html(results, images), force=args.force)
+        _note(args, err, f"wrote {args.report}")
+    if args.annotate:
+        from ..report._annotate import write_annotated_meta
+
+        for r in results:
+            target = write_annotated_meta(r, force=args.force)
+            _note(args, err, f"wrote {target}")
+
+
+def _note(args: argparse.Namespace, err: Any, text: str) -> None:
+    if not args.quiet:
+        err.print(f"iqscope: {text}", highlight=False, markup=False)

@@ -1,0 +1,284 @@
+"""Plots (matplotlib, Agg canvas, no pyplot): PNG bytes from a graded analysis.
+
+Everything drawn comes from the :class:`~iqscope.measure._analysis.Analysis` already
+computed: the averaged spectrum, the markers (carrier, band edges, products ...) and
+the traces (spectrogram, envelope, frequency, Allan deviation). Renderers convert to dB
+for display and choose the view; they never compute a measurement.
+
+The limit mask on the spectrum is a visual aid drawn relative to the displayed peak (a
+spectrum analyser's limit line); the verdicts come from the measurements, not the mask.
+"""
+
+from __future__ import annotations
+
+import io
+import math
+from collections.abc import Mapping
+from typing import Any, Final
+
+import numpy as np
+import numpy.typing as npt
+from matplotlib.backends.backend_agg import FigureCanvasAgg
+from matplotlib.figure import Figure
+
+from ..grading import GradeResult
+from ..measure._analysis import Analysis, Trace
+
+__all__ = ["PLOT_NAMES", "render_plots", "spectrum_figure", "figure_png"]
+
+#: Plots ``render_plots`` may produce, in report order (file names ``STEM-NAME.png``).
+PLOT_NAMES: Final = ("spectrum", "spectrogram", "envelope", "frequency", "allan")
+
+_SIZE: Final = (8.0, 4.5)
+_DPI: Final = 110
+_MASK_COLOR: Final = "#c0392b"
+_EDGE_COLOR: Final = "#2471a3"
+
+
+def figure_png(fig: Figure) -> bytes:
+    """Render a figure to PNG bytes with the Agg canvas."""
+    FigureCanvasAgg(fig)
+    buf = io.BytesIO()
+    fig.savefig(buf, format="png", dpi=_DPI, metadata={"Software": None})
+    return buf.getvalue()
+
+
+def render_plots(result: GradeResult) -> dict[str, bytes]:
+    """Every plot the analysis has data for, as ``{name: PNG bytes}`` in report order."""
+    a = result.analysis
+    out: dict[str, bytes] = {}
+    if a.spectrum is not None and a.spectrum.freqs_hz.size > 1:
+        out["spectrum"] = figure_png(spectrum_figure(result))
+    sg = a.traces.get("spectrogram")
+    if sg is not None and np.ndim(sg.y) == 2 and np.size(sg.y) > 1:
+        out["spectrogram"] = figure_png(_spectrogram_figure(a, sg))
+    env = a.traces.get("envelope")
+    if env is not None and np.ndim(env.y) == 1 and np.size(env.y) > 1:
+        out["envelope"] = figure_png(_line_figure(a, env, "Envelope over time"))
+    fr = a.traces.get("frequency")
+    if fr is not None and np.ndim(fr.y) == 1 and np.size(fr.y) > 1:
+        out["frequency"] = figure_png(_line_figure(a, fr, "Frequency over time", band=fr.extra.get("sigma")))
+    ad = a.traces.get("allan_deviation")
+    if ad is not None and np.ndim(ad.y) == 1 and np.size(ad.y) > 1:
+        out["allan"] = figure_png(_allan_figure(a, ad))
+    return out
+
+
+def _title(a: Analysis, what: str) -> str:
+    name = a.recording.path.replace("\\", "/").rsplit("/", 1)[-1]
+    return f"{what}: {name} ({a.signal.mode})"
+
+
+def _hz_scale(span_hz: float) -> tuple[float, str]:
+    return (1e3, "kHz") if span_hz >= 5e3 else (1.0, "Hz")
+
+
+def _view(a: Analysis, rule_widths: list[float]) -> tuple[float, float]:
+    """Centre and half-span of the spectrum view (Hz offsets from the capture centre)."""
+    spec = a.spectrum
+    assert spec is not None
+    carrier = a.signal.carrier_offset_hz
+    if carrier is None or not math.isfinite(carrier):
+        carrier = float(spec.freqs_hz[int(np.argmax(spec.psd))])
+    reach = [abs(v - carrier) for k, v in a.markers.items() if math.isfinite(v) and k != "worst_spur"]
+    reach += [w for w in rule_widths if math.isfinite(w)]
+    half = 1.4 * max(reach) if reach else 0.0
+    half = max(half, 25 * spec.bin_hz, 200.0)
+    nyq = spec.sample_rate_hz / 2
+    return carrier, min(half, nyq)
+
+
+def _mask_rules(result: GradeResult) -> dict[str, float]:
+    """Pass limits worth drawing: name -> number (Hz widths, dB suppressions)."""
+    out: dict[str, float] = {}
+    for v in result.verdicts:
+        r = v.rule
+        if r is None:
+            continue
+        if v.measurement in ("bandwidth_26db_hz", "occupied_bandwidth_hz") and r.pass_bound.max is not None:
+            out[v.measurement] = r.pass_bound.max
+        if v.measurement in ("carrier_suppression_db", "opposite_sideband_suppression_db") and r.pass_bound.min is not None:
+            out[v.measurement] = r.pass_bound.min
+    return out
+
+
+def spectrum_figure(result: GradeResult) -> Figure:
+    """Spectrum around the signal: carrier, sidebands, band edges, products and the mask."""
+    a = result.analysis
+    spec = a.spectrum
+    assert spec is not None
+    masks = _mask_rules(result)
+    widths = [masks[k] / 2 for k in ("bandwidth_26db_hz", "occupied_bandwidth_hz") if k in masks]
+    centre, half = _view(a, widths)
+    scale, unit = _hz_scale(2 * half)
+    f = spec.freqs_hz
+    sel = (f >= centre - half) & (f <= centre + half)
+    if np.count_nonzero(sel) < 2:
+        sel = np.ones_like(f, dtype=bool)
+    # Display only: power in one resolution bandwidth, so a line reads its power.
+    level = 10.0 * np.log10(np.maximum(spec.psd[sel] * spec.enbw_hz, 1e-30))
+    x = (f[sel] - centre) / scale
+    fig = Figure(figsize=_SIZE, layout="constrained")
+    ax = fig.add_subplot()
+    ax.plot(x, level, color="#1b2631", linewidth=0.9, label="spectrum")
+    peak = float(np.max(level))
+    floor = float(np.percentile(level, 10))
+    ax.set_ylim(max(floor - 10.0, peak - 130.0), peak + 12.0)
+    ax.set_xlim(x[0], x[-1])
+
+    def xm(hz: float) -> float:
+        return (hz - centre) / scale
+
+    m = a.markers
+    if "obw_lower" in m and "obw_upper" in m:
+        ax.axvspan(xm(m["obw_lower"]), xm(m["obw_upper"]), color=_EDGE_COLOR, alpha=0.10, label="99 % bandwidth")
+    if "bw26_lower" in m and "bw26_upper" in m:
+        for k in ("bw26_lower", "bw26_upper"):
+            ax.axvline(xm(m[k]), color=_EDGE_COLOR, linestyle="--", linewidth=0.8)
+        ax.plot([], [], color=_EDGE_COLOR, linestyle="--", linewidth=0.8, label="-26 dB edges")
+    if a.signal.carrier_offset_hz is not None:
+        ax.axvline(0.0, color="#7d3c98", linewidth=0.8, linestyle=":", label="carrier")
+    _draw_point_markers(ax, a, centre, scale, sel, level)
+    _draw_mask(ax, a, masks, centre, scale, peak)
+    ax.set_xlabel(f"offset from carrier ({unit})" if a.signal.carrier_offset_hz is not None else f"offset ({unit})")
+    ax.set_ylabel(f"dBFS in {spec.enbw_hz:.3g} Hz RBW")
+    ax.set_title(_title(a, "Spectrum"), fontsize=10)
+    ax.grid(True, alpha=0.3)
+    ax.legend(loc="best", fontsize=7, framealpha=0.85)
+    return fig
+
+
+_SKIP_POINT: Final = frozenset({"carrier", "obw_lower", "obw_upper", "bw26_lower", "bw26_upper"})
+
+
+def _draw_point_markers(
+    ax: Any, a: Analysis, centre: float, scale: float, sel: npt.NDArray[np.bool_], level: npt.NDArray[np.float64]
+) -> None:
+    spec = a.spectrum
+    assert spec is not None
+    f = spec.freqs_hz[sel]
+    for name, hz in a.markers.items():
+        if name in _SKIP_POINT or not math.isfinite(hz) or hz < f[0] or hz > f[-1]:
+            continue
+        i = int(np.argmin(np.abs(f - hz)))
+        lo, hi = max(0, i - 2), min(level.size, i + 3)
+        y = float(np.max(level[lo:hi]))
+        ax.annotate(
+            name.replace("_", " "),
+            xy=((hz - centre) / scale, y),
+            xytext=(0, 10),
+            textcoords="offset points",
+            ha="center",
+            fontsize=7,
+            arrowprops={"arrowstyle": "-", "color": "#555555", "linewidth": 0.6},
+        )
+
+
+def _draw_mask(ax: Any, a: Analysis, masks: Mapping[str, float], centre: float, scale: float, peak: float) -> None:
+    """Limit mask relative to the displayed peak (a visual aid; verdicts use the figures)."""
+    m = a.markers
+    mid = centre
+    if "obw_lower" in m and "obw_upper" in m:
+        mid = (m["obw_lower"] + m["obw_upper"]) / 2
+    x0, x1 = ax.get_xlim()
+    width = masks.get("bandwidth_26db_hz")
+    drop = 26.0
+    if width is None and "occupied_bandwidth_hz" in masks:
+        width, drop = masks["occupied_bandwidth_hz"], 26.0
+    if width is not None:
+        lo, hi = (mid - width / 2 - centre) / scale, (mid + width / 2 - centre) / scale
+        xs = [x0, lo, lo, hi, hi, x1]
+        ys = [peak - drop, peak - drop, peak + 3, peak + 3, peak - drop, peak - drop]
+        ax.plot(xs, ys, color=_MASK_COLOR, linewidth=1.1, label=f"mask: {_hz_text(width)} wide at -{drop:g} dB")
+    sup = masks.get("carrier_suppression_db")
+    if sup is not None and a.signal.carrier_offset_hz is not None:
+        w = max((x1 - x0) * 0.04, 1e-9)
+        ax.plot([-w, w], [peak - sup] * 2, color=_MASK_COLOR, linewidth=2.0, label=f"carrier limit: peak -{sup:g} dB")
+    opp = masks.get("opposite_sideband_suppression_db")
+    if opp is not None and "obw_lower" in m and "obw_upper" in m and a.signal.carrier_offset_hz is not None:
+        c = a.signal.carrier_offset_hz
+        lo, hi = sorted((2 * c - m["obw_lower"], 2 * c - m["obw_upper"]))
+        ax.plot(
+            [(lo - centre) / scale, (hi - centre) / scale],
+            [peak - opp] * 2,
+            color=_MASK_COLOR,
+            linewidth=1.1,
+            linestyle="-.",
+            label=f"opposite sideband limit: peak -{opp:g} dB",
+        )
+
+
+def _hz_text(hz: float) -> str:
+    return f"{hz / 1e3:g} kHz" if abs(hz) >= 1e3 else f"{hz:g} Hz"
+
+
+def _spectrogram_figure(a: Analysis, tr: Trace) -> Figure:
+    """Image of level over time and frequency; ``y`` rows are times (``x``) and columns
+    frequencies (``extra['freqs_hz']``), in dBFS/Hz (``extra['scale'] == 'linear'``: FS²/Hz)."""
+    img = np.asarray(tr.y, dtype=float)
+    times = np.asarray(tr.x, dtype=float)
+    freqs = np.asarray(tr.extra.get("freqs_hz", np.arange(img.shape[1])), dtype=float)
+    if img.shape[0] != times.size and img.shape[1] == times.size:
+        img = img.T
+    if tr.extra.get("scale") == "linear":
+        img = 10.0 * np.log10(np.maximum(img, 1e-30))
+    span = float(freqs[-1] - freqs[0]) if freqs.size > 1 else 1.0
+    scale, unit = _hz_scale(span)
+    fig = Figure(figsize=_SIZE, layout="constrained")
+    ax = fig.add_subplot()
+    finite = img[np.isfinite(img)]
+    vmax = float(np.max(finite)) if finite.size else 0.0
+    vmin = max(float(np.percentile(finite, 5)) if finite.size else -100.0, vmax - 100.0)
+    t0, t1 = (float(times[0]), float(times[-1])) if times.size > 1 else (0.0, 1.0)
+    mesh = ax.imshow(
+        img,
+        aspect="auto",
+        origin="lower",
+        extent=(float(freqs[0]) / scale, float(freqs[-1]) / scale, t0, t1),
+        vmin=vmin,
+        vmax=vmax,
+        cmap="viridis",
+        interpolation="nearest",
+    )
+    fig.colorbar(mesh, ax=ax, label=str(tr.extra.get("unit", "dBFS/Hz")))
+    ax.set_xlabel(f"offset from capture centre ({unit})")
+    ax.set_ylabel(tr.x_label or "time (s)")
+    ax.set_title(_title(a, "Spectrogram"), fontsize=10)
+    return fig
+
+
+def _line_figure(a: Analysis, tr: Trace, what: str, band: Any = None) -> Figure:
+    fig = Figure(figsize=_SIZE, layout="constrained")
+    ax = fig.add_subplot()
+    x = np.asarray(tr.x, dtype=float)
+    y = np.asarray(tr.y, dtype=float)
+    ax.plot(x, y, color="#1b2631", linewidth=0.9)
+    if band is not None and np.shape(band) == y.shape:
+        s = np.asarray(band, dtype=float)
+        ax.fill_between(x, y - s, y + s, color=_EDGE_COLOR, alpha=0.2, linewidth=0, label="1-sigma")
+        ax.legend(loc="upper right", fontsize=7)
+    ax.set_xlabel(tr.x_label)
+    ax.set_ylabel(tr.y_label)
+    ax.set_title(_title(a, what), fontsize=10)
+    ax.grid(True, alpha=0.3)
+    return fig
+
+
+def _allan_figure(a: Analysis, tr: Trace) -> Figure:
+    fig = Figure(figsize=_SIZE, layout="constrained")
+    ax = fig.add_subplot()
+    x = np.asarray(tr.x, dtype=float)
+    y = np.asarray(tr.y, dtype=float)
+    ok = (x > 0) & (y > 0)
+    err = tr.extra.get("error")
+    if err is not None and np.shape(err) == y.shape:
+        ax.errorbar(x[ok], y[ok], yerr=np.asarray(err, dtype=float)[ok], fmt="o-", markersize=3, linewidth=0.9)
+    else:
+        ax.plot(x[ok], y[ok], "o-", markersize=3, linewidth=0.9)
+    ax.set_xscale("log")
+    ax.set_yscale("log")
+    ax.set_xlabel(tr.x_label)
+    ax.set_ylabel(tr.y_label)
+    ax.set_title(_title(a, "Allan deviation"), fontsize=10)
+    ax.grid(True, which="both", alpha=0.3)
+    return fig
