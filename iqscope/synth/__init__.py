@@ -77,7 +77,7 @@ from ._specs import (
     spec_to_dict,
 )
 from ._files import SYNTH_KEY, describe, synth_metadata, write_audio, write_signal
-from ._truth import Line, envelope_lines, expected_lines, occupied_bandwidth_hz, truth
+from ._truth import Line, envelope_lines, envelope_peak, expected_lines, occupied_bandwidth_hz, truth
 
 __all__ = [
     "DEFAULT_BLOCK_SIZE",
@@ -112,6 +112,7 @@ __all__ = [
     "deterministic_frequency_hz",
     "envelope_coefficients",
     "envelope_lines",
+    "envelope_peak",
     "expected_lines",
     "generate",
     "generate_audio",

@@ -96,9 +96,14 @@ def _jsonable(value: Any) -> Any:
     return value
 
 
-def synth_metadata(spec: SignalSpec | AudioSpec) -> dict[str, Any]:
-    """``{"generator", "spec", "truth"}``, JSON-ready (non-finite numbers become null)."""
-    out: dict[str, Any] = {"generator": f"iqscope {__version__}", "spec": spec_to_dict(spec)}
+def synth_metadata(spec: SignalSpec | AudioSpec, generator: str | None = None) -> dict[str, Any]:
+    """``{"generator", "spec", "truth"}``, JSON-ready (non-finite numbers become null).
+
+    ``generator`` defaults to ``"iqscope <version>"``; pass a fixed text for files that
+    must not change with the version (the demo recordings).
+    """
+    gen = f"iqscope {__version__}" if generator is None else generator
+    out: dict[str, Any] = {"generator": gen, "spec": spec_to_dict(spec)}
     if isinstance(spec, SignalSpec):
         out["truth"] = truth(spec)
     return _jsonable(out)
@@ -112,6 +117,7 @@ def write_signal(
     datatype: str = "cf32_le",
     bits: int | str = 16,
     description: str | None = None,
+    generator: str | None = None,
     force: bool = False,
     block_size: int = DEFAULT_BLOCK_SIZE,
 ) -> Path:
@@ -131,6 +137,9 @@ def write_signal(
         WAV sample format.
     description : str, optional
         ``core:description``; default :func:`describe`.
+    generator : str, optional
+        ``core:recorder`` and the ``generator`` of ``iqscope:synth``; default
+        ``"iqscope <version>"`` (give a fixed text for files that must not change).
     force : bool
         Overwrite existing files.
 
@@ -141,6 +150,12 @@ def write_signal(
     """
     blocks = generate(spec, block_size)
     if format == "sigmf":
+        extra: dict[str, Any] = {
+            SYNTH_KEY: synth_metadata(spec, generator),
+            "core:extensions": [SYNTH_EXTENSION],
+        }
+        if generator is not None:
+            extra["core:recorder"] = generator
         return write_sigmf(
             path,
             blocks,
@@ -148,7 +163,7 @@ def write_signal(
             center_frequency_hz=spec.center_frequency_hz,
             datatype=datatype,
             description=describe(spec) if description is None else description,
-            extra_global={SYNTH_KEY: synth_metadata(spec), "core:extensions": [SYNTH_EXTENSION]},
+            extra_global=extra,
             force=force,
         )
     if format == "wav":
