@@ -101,6 +101,7 @@ def make_fake_soapy(
     gain_range: tuple[float, float] = (0.0, 50.0),
     rate_quantum_hz: float | None = None,
     raise_on_open: str | None = None,
+    fail_read: int | None = None,
 ) -> types.ModuleType:
     """Build a fresh simulated SoapySDR module.
 
@@ -126,6 +127,8 @@ def make_fake_soapy(
         The device rounds the sample rate to a multiple of this (to test read-back).
     raise_on_open : str, optional
         Device(args) raises RuntimeError with this text.
+    fail_read : int, optional
+        This read (0-based) raises RuntimeError, like a driver losing its device.
     """
     mod = types.ModuleType("SoapySDR")
     for name, value in globals().items():
@@ -276,6 +279,8 @@ def make_fake_soapy(
                 return StreamResult(SOAPY_SDR_NOT_SUPPORTED)
             if not stream.active:
                 return StreamResult(SOAPY_SDR_STREAM_ERROR)
+            if fail_read is not None and index == fail_read:
+                raise RuntimeError("device unplugged")
             if stall_after_reads is not None and index >= stall_after_reads:
                 return StreamResult(SOAPY_SDR_TIMEOUT)
             if index in script:

@@ -198,6 +198,17 @@ class TestCaptureLoop:
         assert any("stopped delivering" in w for w in result.warnings)
         _read_sigmf(result.path)
 
+    def test_driver_failure_mid_stream_keeps_samples_so_far(self, tmp_path: Path) -> None:
+        soapy = make_fake_soapy(mtu=1000, fail_read=2)
+        result = capture_to_sigmf(_settings(seconds=10.0), tmp_path / "cap", soapy=soapy)
+        assert result.stalled and result.n_samples == 2000
+        assert any("device unplugged" in w for w in result.warnings)
+        _read_sigmf(result.path)
+        with pytest.raises(CaptureError, match="device unplugged"):
+            capture_to_sigmf(_settings(), tmp_path / "cap2",
+                             soapy=make_fake_soapy(fail_read=0))
+        assert not (tmp_path / "cap2.sigmf-meta").exists()
+
     def test_no_samples_at_all_is_an_error_and_writes_nothing(self, tmp_path: Path) -> None:
         soapy = make_fake_soapy(stall_after_reads=0)
         settings = _settings(read_timeout_s=0.1, stall_timeout_s=0.3)
@@ -424,6 +435,7 @@ class TestCommands:
     def test_capture_then_grade(self, fake_module: Any, tmp_path: Path,
                                 capsys: pytest.CaptureFixture[str]) -> None:
         pytest.importorskip("iqscope.cli._grade", reason="grade command not built yet")
+        pytest.importorskip("iqscope.measure.pipeline", reason="analysis pipeline not built yet")
         out = tmp_path / "cap"
         status = main(CAPTURE + ["-o", str(out), "--grade", "--json", "--mode", "two-tone"])
         captured = capsys.readouterr()

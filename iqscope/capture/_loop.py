@@ -338,6 +338,7 @@ def capture_to_sigmf(
         counts = {"overflows": 0, "timeouts": 0, "stream_errors": 0}
         state = {"done": 0, "interrupted": False, "stalled": False}
         annotations: list[Annotation] = []
+        failure: list[str] = []
         extra: dict[str, Any] = {
             "core:extensions": [
                 {"name": EXTENSION_NAME, "version": EXTENSION_VERSION, "optional": True}
@@ -374,8 +375,13 @@ def capture_to_sigmf(
                 want = min(block, requested - state["done"])
                 if want <= 0:
                     return None
-                sr = device.readStream(stream, [buff], want, timeoutUs=timeout_us)
-                n = int(getattr(sr, "ret", sr))
+                try:
+                    sr = device.readStream(stream, [buff], want, timeoutUs=timeout_us)
+                    n = int(getattr(sr, "ret", sr))
+                except Exception as exc:  # a driver failing mid-stream (e.g. unplugged)
+                    failure.append(f"reading from the receiver failed: {exc}")
+                    state["stalled"] = True
+                    return None
                 if n > 0:
                     n = min(n, want)
                     if settings.stream_format == "CS16":
@@ -428,6 +434,8 @@ def capture_to_sigmf(
             if first is None:
                 if state["interrupted"]:
                     raise KeyboardInterrupt
+                if failure:
+                    raise CaptureError(failure[0])
                 raise CaptureError(
                     f"the receiver delivered no samples within {settings.stall_timeout_s:g} s "
                     f"({counts['timeouts']} read timeouts, {counts['overflows']} overflows, "
@@ -474,9 +482,10 @@ def capture_to_sigmf(
         warnings=tuple(warnings),
     )
     if result.stalled:
+        why = failure[0] if failure else f"nothing for {settings.stall_timeout_s:g} s"
         warnings.append(
             f"the receiver stopped delivering samples after {result.duration_s:.2f} s "
-            f"(nothing for {settings.stall_timeout_s:g} s); the samples read so far are saved"
+            f"({why}); the samples read so far are saved"
         )
         result = dataclasses.replace(result, warnings=tuple(warnings))
     return result
