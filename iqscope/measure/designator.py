@@ -37,6 +37,9 @@ from typing import Final, Literal
 
 import numpy as np
 
+from ..dsp._lines import lobe_half_width_bins
+from ..dsp._noise import spectrum_dof, sum_variance_factor
+from ..dsp._types import Spectrum
 from ._context import AnalysisContext, FigureSet
 from ._result import Measurement, failed
 
@@ -48,6 +51,7 @@ __all__ = [
     "classification_symbols",
     "emission_designator",
     "occupied_bandwidth_from_spectrum",
+    "emission_band",
     "designator_figures",
 ]
 
@@ -333,6 +337,40 @@ def occupied_bandwidth_from_spectrum(
     return lo, hi
 
 
+def emission_band(spectrum: Spectrum, noise_psd: float, sigmas: float = 5.0) -> tuple[float, float]:
+    """The emission's 99 % occupied band (Hz offsets), counting only bins that stand out of the noise.
+
+    Subtracting the noise floor and clipping at zero would leave the positive noise
+    fluctuations of every bin in the sum, which widens the band of a weak emission to
+    the whole recording. So only bins whose main-lobe sum of noise-subtracted PSD
+    exceeds ``sigmas`` standard deviations of a noise-only sum (variance
+    ``(N0 df)^2 R_m / K``, :func:`iqscope.dsp.sum_variance_factor`) contribute; the
+    99 % band (RR No. 1.153) is taken over those.
+
+    Raises
+    ------
+    ValueError
+        When no bin stands out of the noise.
+    """
+    psd = np.asarray(spectrum.psd, dtype=np.float64)
+    if psd.size == 0 or not noise_psd > 0:
+        raise ValueError("no emission above the noise floor")
+    h = lobe_half_width_bins(spectrum)
+    m = 2 * h + 1
+    df = spectrum.bin_hz
+    nfft = int(getattr(spectrum, "nfft", 0) or psd.size)
+    sigma = noise_psd * df * math.sqrt(sum_variance_factor(spectrum.window, nfft, m) / spectrum_dof(spectrum))
+    excess = psd - noise_psd
+    lobe = np.convolve(excess, np.ones(m), mode="same") * df
+    significant = lobe > sigmas * sigma
+    if not np.any(significant):
+        raise ValueError("no emission above the noise floor")
+    # A bin counts when a significant lobe sum covers it.
+    covered = np.convolve(significant.astype(np.float64), np.ones(m), mode="same") > 0
+    weights = np.where(covered, np.clip(excess, 0.0, None), 0.0)
+    return occupied_bandwidth_from_spectrum(spectrum.freqs_hz, weights, df)
+
+
 def designator_figures(ctx: AnalysisContext) -> FigureSet:
     """Figure provider: ``necessary_bandwidth_hz`` with the emission designator.
 
@@ -348,9 +386,8 @@ def designator_figures(ctx: AnalysisContext) -> FigureSet:
     if mode not in ("cw", "am", "dsb", "usb", "lsb"):
         return out
     spec = ctx.spectrum
-    excess = spec.psd - ctx.noise_floor_psd
     try:
-        lo, hi = occupied_bandwidth_from_spectrum(spec.freqs_hz, excess, spec.bin_hz)
+        lo, hi = emission_band(spec, ctx.noise_floor_psd)
     except ValueError:
         out.measurements["necessary_bandwidth_hz"] = failed("Hz", "no emission above the noise floor")
         return out

@@ -44,7 +44,7 @@ from ..dsp._spectrum import SpectrumAccumulator
 from ..dsp._types import Spectrum
 from ..errors import MetadataError, UsageError
 from ..io._recording import Recording
-from .designator import occupied_bandwidth_from_spectrum
+from .designator import emission_band
 from .imd import line_half_width_hz
 
 __all__ = [
@@ -392,9 +392,8 @@ def harmonics_table(
     """
     assumptions: list[str] = []
     fs = fundamental.spectrum
-    excess = fs.psd - fundamental.noise_psd
     try:
-        lo, hi = occupied_bandwidth_from_spectrum(fs.freqs_hz, excess, fs.bin_hz)
+        lo, hi = emission_band(fs, fundamental.noise_psd)
     except ValueError:
         raise UsageError("no emission above the noise in the fundamental's recording", fundamental.path) from None
     h = line_half_width_hz(fs)

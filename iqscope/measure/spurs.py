@@ -41,7 +41,7 @@ from ..dsp._noise import spectrum_dof
 from ..dsp._types import Spectrum
 from ._context import AnalysisContext, FigureSet
 from ._result import Artefact, Measurement, failed
-from .designator import occupied_bandwidth_from_spectrum
+from .designator import emission_band
 from .imd import level_sigma_db, line_half_width_hz
 
 __all__ = [
@@ -287,9 +287,8 @@ def spur_figures(ctx: AnalysisContext) -> FigureSet:
     """
     out = FigureSet()
     spec = ctx.spectrum
-    excess = spec.psd - ctx.noise_floor_psd
     try:
-        lo, hi = occupied_bandwidth_from_spectrum(spec.freqs_hz, excess, spec.bin_hz)
+        lo, hi = emission_band(spec, ctx.noise_floor_psd)
     except ValueError:
         out.measurements["worst_spur_dbc"] = failed("dBc", "no emission above the noise floor")
         return out

@@ -1,0 +1,149 @@
+"""``iqscope harmonics FILES...``: a harmonics table from recordings at f, 2f, 3f ... Wiring only."""
+
+from __future__ import annotations
+
+import argparse
+import json
+import math
+import sys
+from pathlib import Path
+from typing import Any
+
+from ..errors import EXIT_FAIL, EXIT_OK, EXIT_WARN, UsageError
+
+__all__ = ["register", "run"]
+
+EPILOG = """\
+Record the fundamental, then retune the receiver to 2f, 3f ... keeping its gain and the
+attenuator chain unchanged (or give --calibration). Each recording's centre frequency must
+be known. The harmonic number of a recording comes from its centre frequency.
+
+Receiver or transmitter? Record the same harmonic again with a known extra attenuation
+before the receiver and pass it with --step FILE DB: a transmitter product drops by the
+step (1 dB per dB), a product made in the receiver by about 2 or 3 dB per dB.
+
+exit status: 0 every harmonic meets every limit, 1 some harmonic is inconclusive (noise
+too high to show it), 2 some harmonic exceeds a limit, 3/4/5 as for every command.
+"""
+
+
+def _positive(text: str) -> float:
+    try:
+        v = float(text)
+    except ValueError:
+        raise argparse.ArgumentTypeError(f"{text!r} is not a number") from None
+    if not (math.isfinite(v) and v > 0):
+        raise argparse.ArgumentTypeError(f"{text!r} must be a positive number")
+    return v
+
+
+def register(subparsers: Any) -> None:
+    """Add the ``harmonics`` command."""
+    p = subparsers.add_parser(
+        "harmonics",
+        help="table of harmonics from recordings at f, 2f, 3f ... against 47 CFR 97.307 and RR Appendix 3",
+        description="Combine recordings of the fundamental and of its harmonics (same receiver settings, "
+        "or a calibration) into a table of harmonic levels in dBc relative to the mean power of the "
+        "fundamental, compared with 47 CFR 97.307(d)/(e) and ITU RR Appendix 3.",
+        epilog=EPILOG,
+        formatter_class=argparse.RawDescriptionHelpFormatter,
+    )
+    p.add_argument("files", nargs="+", metavar="FILE", help="recordings; the lowest centre frequency is the fundamental")
+    p.add_argument("--fundamental", metavar="FILE", help="the fundamental's recording (default: lowest centre frequency)")
+    p.add_argument("--calibration", metavar="FILE", help="calibration from 'iqscope calibrate' (levels in dBm, PEP in W)")
+    p.add_argument("--pep-w", metavar="W", type=_positive, help="PEP in watts for RR Appendix 3 when not calibrated")
+    p.add_argument(
+        "--step",
+        nargs=2,
+        action="append",
+        metavar=("FILE", "DB"),
+        default=[],
+        help="a second recording of a harmonic's band made with DB more attenuation (receiver-or-transmitter check)",
+    )
+    p.add_argument("--json", action="store_true", help="print one JSON object on stdout")
+    p.add_argument("--plot", metavar="DIR", help="write harmonics.png into DIR")
+    p.add_argument("--force", action="store_true", help="overwrite existing output files")
+    r = p.add_argument_group("reading the input")
+    r.add_argument("--format", metavar="F", help="reader (sigmf, wav, hdf5, raw) or raw datatype")
+    r.add_argument("--rate", metavar="HZ", type=_positive, help="sample rate, Hz (overrides the files)")
+    p.set_defaults(func=run)
+
+
+def _levels(path: str, args: argparse.Namespace) -> Any:
+    from ..io import open_recording
+    from ..measure.harmonics import analyse_levels
+
+    with open_recording(path, format=args.format, rate=args.rate) as rec:
+        return analyse_levels(rec)
+
+
+def run(args: argparse.Namespace) -> int:
+    """Measure every recording, build the table, print it, return the exit status."""
+    from ..measure.harmonics import harmonics_table
+
+    files = list(args.files)
+    if args.fundamental and args.fundamental not in files:
+        files.insert(0, args.fundamental)
+    if len(files) < 2:
+        raise UsageError("give the fundamental's recording and at least one harmonic's recording")
+    if args.plot:
+        from ..io._atomic import check_can_write
+
+        Path(args.plot).mkdir(exist_ok=True)
+        check_can_write(Path(args.plot) / "harmonics.png", force=args.force)
+    levels = {path: _levels(path, args) for path in files}
+    if args.fundamental:
+        fund = levels[args.fundamental]
+    else:
+        fund = min(levels.values(), key=lambda lv: lv.center_frequency_hz)
+    others = [lv for lv in levels.values() if lv is not fund]
+    offset = gain = None
+    if args.calibration:
+        from ..measure.power import load_calibration
+
+        cal = load_calibration(args.calibration)
+        offset, gain = cal.offset_db, cal.gain_db
+    stepped_raw = [(_levels(f, args), _step_db(db)) for f, db in args.step]
+    stepped: dict[int, Any] = {}
+    if stepped_raw:
+        # Match each stepped recording to a harmonic by its centre frequency.
+        f1 = harmonics_table(fund, others, dbfs_to_dbm_db=offset, calibration_gain_db=gain).fundamental.frequency_hz
+        for lv, db in stepped_raw:
+            n = int(round(lv.center_frequency_hz / f1))
+            stepped[n] = (lv, db)
+    table = harmonics_table(
+        fund, others, dbfs_to_dbm_db=offset, calibration_gain_db=gain, pep_w=args.pep_w, stepped=stepped
+    )
+    data = table.to_json()
+    if args.json:
+        sys.stdout.write(json.dumps(data, allow_nan=False) + "\n")
+    else:
+        from ..report._sweep import print_harmonics
+        from ..report._theme import make_console
+
+        print_harmonics(data, make_console())
+    if args.plot:
+        from ..io._atomic import atomic_write
+        from ..report._sweep import render_harmonics_png
+
+        for name, png in render_harmonics_png(data).items():
+            target = Path(args.plot) / f"{name}.png"
+            with atomic_write(target, force=args.force) as fh:
+                fh.write(png)
+            print(f"iqscope: wrote {target}", file=sys.stderr)
+    comps = [c for row in table.harmonics for c in row.comparisons.values()]
+    if "exceeds" in comps:
+        return EXIT_FAIL
+    if "inconclusive" in comps:
+        return EXIT_WARN
+    return EXIT_OK
+
+
+def _step_db(text: str) -> float:
+    try:
+        v = float(text)
+    except ValueError:
+        raise UsageError(f"--step needs an attenuation in dB, not {text!r}") from None
+    if not (math.isfinite(v) and v > 0):
+        raise UsageError(f"--step attenuation must be a positive number of dB, not {text!r}")
+    return v
