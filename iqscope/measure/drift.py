@@ -59,6 +59,8 @@ __all__ = [
     "FrequencyTrack",
     "DriftResult",
     "LineTracker",
+    "WatchStatus",
+    "watch_status",
     "survey_spectrum",
     "plan_lines",
     "choose_block_s",
@@ -69,9 +71,15 @@ __all__ = [
     "drift_figures",
     "resolve_frequency",
     "DEFAULT_WINDOW_S",
+    "NOTE_RELATIVE",
+    "NOTE_INCLUDES_RECEIVER",
     "DEFAULT_SETTLE_BAND_HZ",
 ]
 
+#: Sentence closing each note: with a stable reference line ...
+NOTE_RELATIVE = " Relative to the stable reference line (the receiver's own drift removed)."
+#: ... and without one.
+NOTE_INCLUDES_RECEIVER = " Includes the receiver's own oscillator drift (no --reference line)."
 #: Default window for the worst excursion, s (a beacon transmission is ~2 minutes).
 DEFAULT_WINDOW_S = 120.0
 #: Default half-width of the settling band, Hz (widened to 5 sigma of one block if needed).
@@ -415,6 +423,10 @@ class BlockEstimate:
     """One estimate per followed line."""
     stable: ToneEstimate | None
     """The stable (reference) line's estimate, in reference mode."""
+    carrier_power: float | None = None
+    """Power at the carrier frequency in this block, FS^2 (single-bin DFT, includes noise
+    of variance ``noise_power / N``); None when the carrier's place is not known or the
+    carrier is the followed line."""
 
     @property
     def valid(self) -> bool:
@@ -594,8 +606,13 @@ class LineTracker:
             self._centres = [e.frequency_hz for e in line_ests]
         if stable is not None and stable.detected:
             self._stable_centre = stable.frequency_hz
+        carrier_p: float | None = None
+        if self.plan.carrier_shift_hz is not None and self.plan.kind in ("sideband pair", "tone"):
+            fc = float(np.mean([e.frequency_hz for e in line_ests])) - self.plan.carrier_shift_hz
+            ph = np.exp(-2j * np.pi * fc / self.sample_rate_hz * np.arange(block.size))
+            carrier_p = abs(complex(np.dot(block.astype(np.complex128), ph))) ** 2 / block.size**2
         i = len(self._blocks)
-        est = BlockEstimate(i, (i + 0.5) * self.block_s, line_ests, stable)
+        est = BlockEstimate(i, (i + 0.5) * self.block_s, line_ests, stable, carrier_p)
         self._blocks.append(est)
         return est
 
@@ -908,11 +925,7 @@ def drift_measurements(
              "drift_worst_window_hz", "warmup_settling_s")
     units = ("Hz", "Hz/min", "Hz", "Hz", "s")
     relative = track.stable_hz is not None
-    rel_note = (
-        " Relative to the stable reference line (the receiver's own drift removed)."
-        if relative
-        else " Includes the receiver's own oscillator drift (no --reference line)."
-    )
+    rel_note = NOTE_RELATIVE if relative else NOTE_INCLUDES_RECEIVER
     details: dict[str, Any] = {}
     if t.size < MIN_BLOCKS:
         why = (f"only {t.size} of {track.n_blocks} blocks had the line above the noise "
@@ -1094,6 +1107,84 @@ def drift_measurements(
     if lost_line and key_i == 0:
         warnings.append(f"the followed line was below the noise in {lost_line} of {track.n_blocks} blocks")
     return DriftResult(track, ms, allan, (icpt, slope), nominal, tuple(warnings), details)
+
+
+# --------------------------------------------------------------------------------------
+# Live status (watch)
+# --------------------------------------------------------------------------------------
+@dataclass(frozen=True)
+class WatchStatus:
+    """What ``iqscope watch`` shows after each block (plain data for the renderer)."""
+
+    elapsed_s: float
+    """Recording time tracked so far, s."""
+    n_blocks: int
+    n_valid: int
+    """Blocks in which the line was seen."""
+    level_dbfs: float | None
+    """Power of the followed line(s) in the last block, dBFS."""
+    snr_db: float | None
+    """Per-sample SNR of the followed line in the last block, dB."""
+    offset_hz: float | None
+    """Last block's reference frequency, Hz offset (from the nominal carrier or centre)."""
+    sigma_hz: float | None
+    drift_hz_per_min: float | None
+    """Regression slope so far, Hz/min."""
+    drift_se_hz_per_min: float | None
+    peak_to_peak_hz: float | None
+    """Max - min so far, Hz."""
+    carrier_suppression_db: float | None
+    """Sideband power over carrier power (averaged over the blocks so far), dB."""
+    carrier_limited_by_noise: bool
+    """True when the carrier is not above the noise: the value is a lower bound."""
+    what: str
+    """What is followed."""
+
+
+def watch_status(tracker: LineTracker, nominal_offset_hz: float | None = None) -> WatchStatus:
+    """Summary of a tracker's blocks so far (cheap: O(blocks))."""
+    blocks = tracker.blocks
+    nominal = nominal_offset_hz or 0.0
+    if not blocks:
+        return WatchStatus(0.0, 0, 0, None, None, None, None, None, None, None, None, False,
+                           tracker.plan.description)
+    last = blocks[-1]
+    tr = tracker.track()
+    t, f, s = tr.corrected()
+    slope = se = pp = None
+    if t.size >= 3:
+        b, _, e, _ = _slope(t, f)
+        slope, se = b * 60.0, e * 60.0
+        pp = float(f.max() - f.min())
+    cs: float | None = None
+    limited = False
+    good = [b for b in blocks if b.valid and b.carrier_power is not None]
+    if good:
+        p_sb = float(np.mean([sum(e.amplitude**2 for e in b.lines) for b in good]))
+        p_c = float(np.mean([b.carrier_power for b in good]))  # type: ignore[misc]
+        noise = float(np.mean([b.lines[0].noise_power / b.lines[0].n_samples for b in good]))
+        # the mean of K single-bin powers of noise has std noise / sqrt(K): 3 sigma above it
+        floor = noise * (1.0 + 3.0 / math.sqrt(len(good)))
+        if p_c > floor:
+            cs = 10 * math.log10(p_sb / (p_c - noise))
+        else:  # carrier not seen: it is at most 3 sigma of the averaged noise
+            cs = 10 * math.log10(p_sb / (floor - noise))
+            limited = True
+    return WatchStatus(
+        elapsed_s=len(blocks) * tracker.block_s,
+        n_blocks=len(blocks),
+        n_valid=int(sum(b.valid for b in blocks)),
+        level_dbfs=last.level_dbfs if last.valid else None,
+        snr_db=min(e.snr_db for e in last.lines) if last.valid else None,
+        offset_hz=(float(f[-1]) - nominal) if (f.size and last.valid) else None,
+        sigma_hz=float(s[-1]) if (s.size and last.valid) else None,
+        drift_hz_per_min=slope,
+        drift_se_hz_per_min=se,
+        peak_to_peak_hz=pp,
+        carrier_suppression_db=cs,
+        carrier_limited_by_noise=limited,
+        what=tracker.plan.description,
+    )
 
 
 # --------------------------------------------------------------------------------------

@@ -1,0 +1,161 @@
+"""``iqscope drift FILE``: follow the transmitter's frequency through a recording. Wiring only.
+
+Text report on stdout (or ``--json``: one ``iqscope.drift/1`` object, see docs/drift.md);
+a progress bar on stderr when it is a terminal. ``--plot DIR`` writes
+``STEM-drift-frequency.png`` and ``STEM-drift-allan.png`` atomically (never over an
+existing file without ``--force``).
+"""
+
+from __future__ import annotations
+
+import argparse
+import math
+import sys
+from pathlib import Path
+from typing import Any
+
+from ..errors import UsageError
+
+__all__ = ["register", "run", "add_tracking_options", "positive_seconds", "frequency"]
+
+
+def frequency(text: str) -> float:
+    """argparse type: a finite frequency in Hz (``48k``, ``14.1M`` accepted)."""
+    from ._inspect import parse_hz
+
+    value = parse_hz(text)
+    if not math.isfinite(value):
+        raise argparse.ArgumentTypeError(f"{text!r} is not a finite frequency")
+    return value
+
+
+def _positive_hz(text: str) -> float:
+    value = frequency(text)
+    if value <= 0:
+        raise argparse.ArgumentTypeError(f"{text!r} must be above 0 Hz")
+    return value
+
+
+def positive_seconds(text: str) -> float:
+    """argparse type: a positive, finite number of seconds."""
+    try:
+        value = float(text)
+    except ValueError:
+        raise argparse.ArgumentTypeError(f"{text!r} is not a number of seconds") from None
+    if not math.isfinite(value) or value <= 0:
+        raise argparse.ArgumentTypeError(f"{text!r} must be a positive number of seconds")
+    return value
+
+
+def add_tracking_options(p: argparse.ArgumentParser) -> None:
+    """Options shared by ``drift`` and ``watch``: what to follow and how."""
+    s = p.add_argument_group("what to follow")
+    s.add_argument("--mode", choices=("auto", "cw", "am", "dsb", "usb", "lsb", "two-tone"), default="auto",
+                   help="emission mode (default auto: the strongest line, or an equal pair averaged)")
+    s.add_argument("--carrier", metavar="HZ", type=frequency,
+                   help="nominal carrier: within +/- fs/2 an offset from the capture centre, else absolute "
+                   "RF; frequency_offset_hz is measured from it")
+    s.add_argument("--tone", metavar="HZ", type=_positive_hz, help="SSB test tone's audio frequency")
+    s.add_argument("--line", metavar="HZ", type=frequency, help="follow the line nearest this frequency")
+    s.add_argument("--reference", metavar="HZ", type=frequency,
+                   help="a stable line in the same capture: drift is reported relative to it "
+                   "(removes the receiver's own drift); absolute RF also corrects the offset")
+    t = p.add_argument_group("tracking")
+    t.add_argument("--block", metavar="S", type=positive_seconds, help="block length, s (default: from the SNR)")
+    t.add_argument("--span", metavar="HZ", type=_positive_hz,
+                   help="search +/- this around the last seen frequency (default: 20 Hz or 8 bins)")
+    t.add_argument("--window", metavar="S", type=positive_seconds, default=120.0,
+                   help="window for the worst excursion, s (default 120)")
+    t.add_argument("--settle-band", metavar="HZ", type=_positive_hz, default=1.0,
+                   help="settling band half-width, Hz (default 1)")
+    r = p.add_argument_group("reading the input")
+    r.add_argument("--format", metavar="F", help="reader (sigmf, wav, hdf5, raw) or raw datatype (cf32, ci16, ci8, cu8 ...)")
+    r.add_argument("--rate", metavar="HZ", type=_positive_hz, help="sample rate, Hz (overrides the file)")
+    r.add_argument("--center", metavar="HZ", type=frequency, help="centre frequency, Hz (overrides the file)")
+
+
+def register(subparsers: Any) -> None:
+    """Add the ``drift`` command."""
+    p = subparsers.add_parser(
+        "drift",
+        help="frequency drift and stability of a line through a recording",
+        description="Follow the transmitter's reference line (the carrier, an SSB test tone, or the "
+        "two DSB sideband lines averaged) block by block and report its offset, drift rate, "
+        "peak-to-peak, worst excursion within a window, warm-up settling time and, when the RF "
+        "frequency is known, the overlapping Allan deviation. Without --reference the figures "
+        "include the receiver's own oscillator drift.",
+    )
+    p.add_argument("file", help="recording: .sigmf-meta/.sigmf, .wav, .h5[:/dataset], or a raw file")
+    add_tracking_options(p)
+    o = p.add_argument_group("output")
+    o.add_argument("--json", action="store_true", help="print one JSON object (iqscope.drift/1) on stdout")
+    o.add_argument("--no-track", action="store_true", help="leave the per-block track out of the JSON")
+    o.add_argument("--plot", metavar="DIR", help="write frequency-versus-time and ADEV plots (PNG) into DIR")
+    o.add_argument("--force", action="store_true", help="overwrite existing output files")
+    o.add_argument("--quiet", "-q", action="store_true", help="no progress bar")
+    p.set_defaults(func=run)
+
+
+def _plot_targets(args: argparse.Namespace) -> list[Path]:
+    from ..io._atomic import check_can_write
+    from ..report._drift import DRIFT_PLOT_NAMES
+    from ._grade import output_stem
+
+    folder = Path(args.plot)
+    if folder.exists() and not folder.is_dir():
+        raise UsageError(f"--plot needs a folder, but {folder} is a file")
+    stem = output_stem(args.file)
+    targets = [folder / f"{stem}-drift-{name}.png" for name in DRIFT_PLOT_NAMES]
+    if folder.is_dir():
+        for target in targets:
+            check_can_write(target, force=args.force)
+    return targets
+
+
+def run(args: argparse.Namespace) -> int:
+    """Open, track, figure, render."""
+    from ..io import open_recording
+    from ..measure.drift import analyse_drift
+    from ..report._drift import drift_document, drift_plots, progress_reporter, render_drift
+    from ..report._json import dumps
+    from ..report._theme import is_ascii, make_console
+
+    if args.format is not None and not args.format.strip():
+        raise UsageError("--format needs a value")
+    targets = _plot_targets(args) if args.plot else []
+    with open_recording(args.file, format=args.format, rate=args.rate, center=args.center) as rec:
+        err = make_console(stderr=True)
+        show = sys.stderr.isatty() and not args.quiet
+        with progress_reporter(err, enabled=show, label=f"tracking {rec.name}") as progress:
+            result = analyse_drift(
+                rec,
+                mode=args.mode,
+                carrier_hz=args.carrier,
+                tone_hz=args.tone,
+                line_hz=args.line,
+                reference_hz=args.reference,
+                block_s=args.block,
+                span_hz=args.span,
+                window_s=args.window,
+                settle_band_hz=args.settle_band,
+                progress=progress,
+            )
+        if args.json:
+            sys.stdout.write(dumps(drift_document(result, rec, include_track=not args.no_track)) + "\n")
+            sys.stdout.flush()
+        else:
+            out = make_console()
+            out.print(render_drift(result, rec, ascii_only=is_ascii(out)))
+        if targets:
+            from ..io._atomic import atomic_write
+
+            Path(args.plot).mkdir(exist_ok=True)
+            pngs = drift_plots(result, rec.name)
+            for target in targets:
+                name = target.stem.rsplit("-drift-", 1)[-1]
+                if name not in pngs:
+                    continue
+                with atomic_write(target, force=args.force) as fh:
+                    fh.write(pngs[name])
+                print(f"iqscope: wrote {target}", file=sys.stderr)
+    return 0

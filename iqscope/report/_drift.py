@@ -1,0 +1,284 @@
+"""Drift reports: text (rich), JSON document, PNG plots, live watch panel, progress bar.
+
+Renderers only draw what :mod:`iqscope.measure.drift` computed (a
+:class:`~iqscope.measure.drift.DriftResult` or a
+:class:`~iqscope.measure.drift.WatchStatus`); they never compute a figure.
+"""
+
+from __future__ import annotations
+
+import contextlib
+import io
+import math
+from collections.abc import Callable, Iterator, Mapping
+from typing import Any, Final
+
+import numpy as np
+from matplotlib.backends.backend_agg import FigureCanvasAgg
+from matplotlib.figure import Figure
+from rich.console import Console, Group, RenderableType
+from rich.panel import Panel
+from rich.progress import BarColumn, Progress, TextColumn, TimeRemainingColumn
+from rich.table import Table
+from rich.text import Text
+
+from ..io._recording import Recording
+from ..measure._result import Measurement
+from ..measure.drift import NOTE_INCLUDES_RECEIVER, NOTE_RELATIVE, DriftResult, WatchStatus
+from ._units import format_duration, format_frequency, format_measurement, format_rate, ge_le
+
+__all__ = [
+    "DRIFT_SCHEMA",
+    "DRIFT_FIGURES",
+    "DRIFT_PLOT_NAMES",
+    "drift_document",
+    "render_drift",
+    "drift_plots",
+    "watch_panel",
+    "progress_reporter",
+]
+
+#: Schema of ``iqscope drift --json``.
+DRIFT_SCHEMA: Final = "iqscope.drift/1"
+#: Figures in report order, with their labels.
+DRIFT_FIGURES: Final[Mapping[str, str]] = {
+    "frequency_offset_hz": "Frequency offset",
+    "drift_hz_per_min": "Drift rate",
+    "drift_peak_to_peak_hz": "Peak-to-peak",
+    "drift_worst_window_hz": "Worst window",
+    "warmup_settling_s": "Warm-up settling",
+    "allan_deviation": "Allan deviation",
+}
+#: Plots ``drift_plots`` may produce (file names ``STEM-drift-NAME.png``).
+DRIFT_PLOT_NAMES: Final = ("frequency", "allan")
+
+_SIZE: Final = (8.0, 4.5)
+_DPI: Final = 110
+
+
+def _finite(x: float | None) -> float | None:
+    return None if x is None or not math.isfinite(x) else float(x)
+
+
+def drift_document(result: DriftResult, recording: Recording, *, include_track: bool = True) -> dict[str, Any]:
+    """The ``iqscope drift --json`` object (schema ``iqscope.drift/1``)."""
+    tr = result.track
+    t, f, s = tr.corrected()
+    doc: dict[str, Any] = {
+        "schema": DRIFT_SCHEMA,
+        "recording": {
+            "path": None if recording.path is None else str(recording.path),
+            "format": recording.format,
+            "sample_rate_hz": recording.sample_rate_hz,
+            "center_frequency_hz": _finite(recording.center_frequency_hz),
+            "n_samples": recording.n_samples,
+            "duration_s": recording.duration_s,
+        },
+        "line": {
+            "kind": tr.plan.kind,
+            "description": tr.plan.description,
+            "start_offsets_hz": list(tr.plan.lines_hz),
+            "carrier_shift_hz": _finite(tr.plan.carrier_shift_hz),
+            "reference_line_hz": _finite(tr.stable_nominal_hz),
+            "relative_to_reference": tr.stable_hz is not None,
+        },
+        "tracking": {
+            "block_s": tr.block_s,
+            "span_hz": tr.span_hz,
+            "window": tr.window,
+            "n_blocks": tr.n_blocks,
+            "n_used": int(t.size),
+            "nominal_offset_hz": result.nominal_offset_hz,
+        },
+        "measurements": {k: m.to_json() for k, m in result.measurements.items()},
+        "warnings": list(result.warnings),
+    }
+    if include_track:
+        doc["track"] = {
+            "time_s": [round(float(v), 6) for v in t],
+            "offset_hz": [round(float(v), 6) for v in (f - result.nominal_offset_hz)],
+            "sigma_hz": [float(f"{v:.3g}") for v in s],
+        }
+    return doc
+
+
+def _value_text(name: str, m: Measurement, ascii_only: bool) -> str:
+    if m.value is None:
+        return "not measured"
+    if m.unit == "1":
+        pm = ge_le(ascii_only)[2]
+        u = f" {pm} {m.uncertainty:.1e}" if m.uncertainty else ""
+        tau = m.details.get("tau_quoted_s")
+        at = f" at tau = {tau:g} s" if tau is not None else ""
+        return f"{m.value:.2e}{u}{at}"
+    if name == "warmup_settling_s":
+        return format_measurement(name, m.value, m.unit, m.uncertainty, ascii_only=ascii_only) + (
+            f" ({format_duration(m.value)})" if m.value >= 60 else ""
+        )
+    return format_measurement(
+        name, m.value, m.unit, m.uncertainty, limited_by_noise=m.limited_by_noise, bound=m.bound,
+        ascii_only=ascii_only,
+    )
+
+
+def render_drift(result: DriftResult, recording: Recording, *, ascii_only: bool = False) -> RenderableType:
+    """Header, figures table and notes of ``iqscope drift``."""
+    tr = result.track
+    head = Table.grid(padding=(0, 2))
+    head.add_column(style="iqscope.label")
+    head.add_column()
+    head.add_row("Recording", f"{recording.name}  ({format_rate(recording.sample_rate_hz)}, "
+                 f"{format_duration(recording.duration_s)}, centre "
+                 f"{format_frequency(recording.center_frequency_hz)})")
+    head.add_row("Followed", tr.plan.description)
+    if tr.stable_hz is not None:
+        head.add_row("Reference", f"stable line near {tr.stable_nominal_hz:.1f} Hz: figures are relative to it")
+    else:
+        head.add_row("Reference", "none: the figures include the receiver's own drift")
+    head.add_row("Blocks", f"{tr.n_blocks} x {tr.block_s:g} s, search +/-{tr.span_hz:.3g} Hz, {tr.window} window")
+    table = Table(title="Frequency drift", title_justify="left", show_lines=False)
+    table.add_column("Figure", style="iqscope.label")
+    table.add_column("Value", style="iqscope.value", no_wrap=True)
+    notes = Table.grid(padding=(0, 1))
+    notes.add_column(style="iqscope.muted", no_wrap=True)
+    notes.add_column(style="iqscope.note")
+    for i, (name, label) in enumerate(((n, lb) for n, lb in DRIFT_FIGURES.items() if n in result.measurements), 1):
+        m = result.measurements[name]
+        table.add_row(f"{label} [{i}]", _value_text(name, m, ascii_only))
+        # the receiver sentence is said once, in the header
+        note = m.note.replace(NOTE_RELATIVE, "").replace(NOTE_INCLUDES_RECEIVER, "").strip()
+        notes.add_row(f"[{i}]", note)
+    parts: list[RenderableType] = [head, table, notes]
+    for w in result.warnings:
+        parts.append(Text(f"! {w}", style="iqscope.warn"))
+    return Group(*parts)
+
+
+# -- plots ----------------------------------------------------------------------------
+def _png(fig: Figure) -> bytes:
+    FigureCanvasAgg(fig)
+    buf = io.BytesIO()
+    fig.savefig(buf, format="png", dpi=_DPI, metadata={"Software": None})
+    return buf.getvalue()
+
+
+def frequency_figure(result: DriftResult, title: str) -> Figure:
+    """Frequency offset against time with its 1-sigma band, the regression line, the
+    worst window and the settling time."""
+    tr = result.frequency_trace()
+    fig = Figure(figsize=_SIZE, layout="constrained")
+    ax = fig.add_subplot()
+    x = np.asarray(tr.x, dtype=float)
+    y = np.asarray(tr.y, dtype=float)
+    scale, xlab = (60.0, "time (min)") if x.size and x[-1] > 600 else (1.0, "time (s)")
+    ax.plot(x / scale, y, color="#1b2631", linewidth=0.8, label="block frequency")
+    sig = np.asarray(tr.extra.get("sigma", np.zeros_like(y)), dtype=float)
+    if sig.shape == y.shape:
+        ax.fill_between(x / scale, y - sig, y + sig, color="#2471a3", alpha=0.25, linewidth=0, label="1-sigma")
+    fit = tr.extra.get("fit")
+    slope = result.measurements.get("drift_hz_per_min")
+    if fit is not None and x.size:
+        icpt, b = fit
+        xx = np.array([x[0], x[-1]])
+        lab = "fit" if slope is None or slope.value is None else f"fit {slope.value:+.3g} Hz/min"
+        ax.plot(xx / scale, icpt + b * xx - result.nominal_offset_hz, "--", color="#c0392b", linewidth=1.0, label=lab)
+    ww = result.measurements.get("drift_worst_window_hz")
+    if ww is not None and ww.value is not None and "window_start_s" in ww.details:
+        w0 = float(ww.details["window_start_s"])
+        ax.axvspan(w0 / scale, (w0 + float(ww.details["window_s"])) / scale, color="#f5b041", alpha=0.15,
+                   label=f"worst {ww.details['window_s']:g}-s window")
+    st = result.measurements.get("warmup_settling_s")
+    kd = tr.extra.get("key_down_s")
+    if st is not None and st.value is not None and st.value > 0 and kd is not None:
+        ax.axvline((kd + st.value) / scale, color="#27ae60", linewidth=1.0, label="settled")
+    ax.set_xlabel(xlab)
+    ax.set_ylabel(tr.y_label + (" (relative to reference line)" if tr.extra.get("relative") else ""))
+    ax.set_title(title, fontsize=10)
+    ax.grid(True, alpha=0.3)
+    ax.legend(loc="best", fontsize=7)
+    return fig
+
+
+def allan_figure(result: DriftResult, title: str) -> Figure | None:
+    """Overlapping Allan deviation against tau (log-log) with simple error bars."""
+    tr = result.allan_trace()
+    if tr is None:
+        return None
+    fig = Figure(figsize=_SIZE, layout="constrained")
+    ax = fig.add_subplot()
+    x = np.asarray(tr.x, dtype=float)
+    y = np.asarray(tr.y, dtype=float)
+    ok = (x > 0) & (y > 0)
+    err = np.asarray(tr.extra.get("error"), dtype=float)
+    ax.errorbar(x[ok], y[ok], yerr=err[ok] if err.shape == y.shape else None, fmt="o-", markersize=3, linewidth=0.9)
+    ax.set_xscale("log")
+    ax.set_yscale("log")
+    ax.set_xlabel(tr.x_label)
+    ax.set_ylabel(tr.y_label + " (fractional)")
+    ax.set_title(title, fontsize=10)
+    ax.grid(True, which="both", alpha=0.3)
+    return fig
+
+
+def drift_plots(result: DriftResult, name: str) -> dict[str, bytes]:
+    """``{"frequency": PNG, "allan": PNG}`` (ADEV only when the RF frequency is known)."""
+    out: dict[str, bytes] = {}
+    if result.track.corrected()[0].size > 1:
+        out["frequency"] = _png(frequency_figure(result, f"Frequency over time: {name}"))
+    fig = allan_figure(result, f"Allan deviation: {name}")
+    if fig is not None:
+        out["allan"] = _png(fig)
+    return out
+
+
+# -- live -----------------------------------------------------------------------------
+def _opt(x: float | None, fmt: str, unit: str = "") -> str:
+    return "-" if x is None or not math.isfinite(x) else f"{x:{fmt}}{unit}"
+
+
+def watch_panel(status: WatchStatus, *, title: str = "iqscope watch", state: str = "") -> Panel:
+    """The live display of ``iqscope watch``: one small table, redrawn every block."""
+    t = Table.grid(padding=(0, 2))
+    t.add_column(style="iqscope.label")
+    t.add_column(style="iqscope.value")
+    t.add_row("Followed", status.what)
+    t.add_row("Time", f"{format_duration(status.elapsed_s)}  ({status.n_valid}/{status.n_blocks} blocks with the line)")
+    t.add_row("Level", _opt(status.level_dbfs, ".1f", " dBFS") + "   SNR " + _opt(status.snr_db, ".1f", " dB/sample"))
+    off = _opt(status.offset_hz, "+.3f", " Hz")
+    if status.sigma_hz is not None:
+        off += f" +/- {status.sigma_hz:.2g} Hz"
+    t.add_row("Offset", off)
+    drift = _opt(status.drift_hz_per_min, "+.3f", " Hz/min")
+    if status.drift_se_hz_per_min is not None:
+        drift += f" +/- {status.drift_se_hz_per_min:.2g}"
+    t.add_row("Drift so far", drift + "   peak-to-peak " + _opt(status.peak_to_peak_hz, ".3f", " Hz"))
+    if status.carrier_suppression_db is not None:
+        cs = f"{status.carrier_suppression_db:.1f} dB"
+        if status.carrier_limited_by_noise:
+            cs = f">= {math.floor(status.carrier_suppression_db):.0f} dB (noise-limited)"
+        t.add_row("Carrier suppression", cs)
+    return Panel(t, title=title, subtitle=state or None, title_align="left")
+
+
+@contextlib.contextmanager
+def progress_reporter(console: Console | None, *, enabled: bool, label: str) -> Iterator[Callable[[int, int], None]]:
+    """Yield ``progress(done, total)`` driving a transient progress bar on ``console``
+    (stderr); a no-op when not ``enabled``."""
+    if not enabled:
+        yield lambda done, total: None
+        return
+    progress = Progress(
+        TextColumn("{task.description}"),
+        BarColumn(),
+        TextColumn("{task.percentage:>5.1f} %"),
+        TimeRemainingColumn(),
+        console=console or Console(stderr=True),
+        transient=True,
+    )
+    with progress:
+        task = progress.add_task(label, total=None)
+
+        def update(done: int, total: int) -> None:
+            progress.update(task, completed=done, total=total)
+
+        yield update
