@@ -99,7 +99,7 @@ class HDF5Recording(Recording):
         except (OSError, ValueError, RuntimeError, KeyError) as exc:
             raise FormatError(f"cannot read dataset {self._ds.name}: {exc}", self.path) from exc
         if block.ndim == 1:
-            return block.astype(np.complex64)
+            return np.asarray(block, dtype=np.complex64)
         fmt = self.sample_format
         out = np.empty(block.shape[0], np.complex64)
         if fmt.kind == "f":
@@ -118,7 +118,7 @@ class HDF5Recording(Recording):
 
 def open_hdf5(req: OpenRequest) -> Recording:
     """Open an I/Q dataset of an HDF5 file."""
-    import h5py
+    import h5py  # type: ignore[import-untyped]
 
     path = req.path
     if file_size(path) == 0:

@@ -390,22 +390,20 @@ def _iso_utc(value: _dt.datetime | str) -> str:
 
 
 def iter_blocks(samples: npt.ArrayLike | Iterable[npt.ArrayLike], block: int = _BLOCK) -> Iterator[npt.NDArray[Any]]:
-    """Yield 1-D sample blocks from an array (sliced) or an iterable of blocks (as given)."""
-    if isinstance(samples, np.ndarray) or (
-        not isinstance(samples, Iterator) and np.ndim(samples) > 0 and not _is_iterable_of_blocks(samples)
-    ):
-        arr = np.asarray(samples).ravel()
+    """Yield 1-D sample blocks: an array is sliced into ``block``-sample pieces; a list or
+    tuple of arrays, or any other iterable (a generator of blocks), is passed on block by
+    block; a plain sequence of numbers is taken as one array."""
+    if isinstance(samples, (list, tuple)) and not all(isinstance(b, np.ndarray) for b in samples):
+        samples = np.asarray(samples)
+    if isinstance(samples, np.ndarray):
+        arr = samples.ravel()
         for i in range(0, arr.size, block):
             yield arr[i : i + block]
         return
-    for b in samples:  # type: ignore[union-attr]
+    if not isinstance(samples, Iterable):
+        raise TypeError(f"samples must be an array or an iterable of arrays, not {type(samples).__name__}")
+    for b in samples:
         yield np.asarray(b).ravel()
-
-
-def _is_iterable_of_blocks(obj: Any) -> bool:
-    if isinstance(obj, (list, tuple)) and obj and isinstance(obj[0], np.ndarray):
-        return True
-    return False
 
 
 def _annotation_json(a: Annotation) -> dict[str, Any]:

@@ -43,7 +43,6 @@ WAVE_FORMAT_IEEE_FLOAT: Final = 0x0003
 WAVE_FORMAT_EXTENSIBLE: Final = 0xFFFE
 #: Tail shared by the KSDATAFORMAT_SUBTYPE_* GUIDs (after the 2-byte format tag + 2 zero bytes).
 _GUID_TAIL: Final = b"\x00\x00\x00\x00\x10\x00\x80\x00\x00\xaa\x00\x38\x9b\x71"
-_MAX_HEADER_SCAN: Final = 64 * 1024 * 1024
 
 
 class WavInfo:
@@ -120,7 +119,7 @@ def parse_wav_header(path: Path) -> WavInfo:
                     f"chunk {cid!r} claims {csize} bytes, past the end of the file, before any data chunk", path
                 )
             pos = body + csize + (csize & 1)
-            if pos > size or pos > _MAX_HEADER_SCAN + size:
+            if pos > size:
                 raise FormatError("no 'data' chunk (chunk sizes run past the end of the file)", path)
     except OSError as exc:
         raise FormatError(f"read failed: {exc.strerror or exc}", path) from exc
