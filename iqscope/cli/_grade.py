@@ -107,7 +107,9 @@ def register(subparsers: Any) -> None:
 
 def output_stem(path: str) -> str:
     """``bench/dsb40m.sigmf-meta`` -> ``dsb40m``: the base of a recording's output names."""
-    name = Path(path.split(":", 1)[0] if path.count(":") == 1 and not Path(path).exists() else path).name
+    name = Path(path).name
+    if ":" in name and not Path(path).exists():  # HDF5 "file.h5:/dataset"
+        name = name.split(":", 1)[0]
     for suffix in (".sigmf-meta", ".sigmf-data", ".sigmf"):
         if name.endswith(suffix):
             return name[: -len(suffix)] or "recording"

@@ -8,7 +8,8 @@ Sections of a graded recording: :func:`render_header` (recording, mode, carrier,
 
 from __future__ import annotations
 
-from collections.abc import Mapping, Sequence
+import contextlib
+from collections.abc import Callable, Iterator, Mapping, Sequence
 from typing import Final
 
 from rich import box
@@ -41,6 +42,7 @@ __all__ = [
     "render_summary",
     "render_profile",
     "render_profile_list",
+    "progress_reporter",
 ]
 
 #: Readable names of the stable measurement keys.
@@ -64,6 +66,12 @@ LABELS: Final[Mapping[str, str]] = {
     "clipped_fraction": "clipped samples",
     "worst_spur_dbc": "worst spur",
     "necessary_bandwidth_hz": "necessary bandwidth",
+    "imd5_db_pep": "IMD5 (re PEP)",
+    "tone_balance_db": "tone balance",
+    "frequency_offset_hz": "frequency offset",
+    "warmup_settling_s": "warm-up settling time",
+    "mean_power_dbm": "mean power",
+    "pep_dbm": "PEP",
 }
 
 #: One-line caution under every text report.
@@ -299,3 +307,33 @@ def render_profile_list(profiles: Sequence[LimitsProfile], defaults: Mapping[str
         every = bool(modes) and len(modes) == len(defaults)
         table.add_row(p.name, "every mode" if every else ", ".join(modes), p.description)
     return table
+
+
+@contextlib.contextmanager
+def progress_reporter(
+    console: Console, label: str, *, enabled: bool = True
+) -> Iterator[Callable[[int, int], None] | None]:
+    """A transient progress bar on ``console`` (stderr); yields a ``(done, total)`` callback.
+
+    Yields None when disabled (quiet, or stderr not a terminal), so the pipeline skips it.
+    """
+    if not enabled:
+        yield None
+        return
+    from rich.progress import BarColumn, Progress, TextColumn, TimeRemainingColumn
+
+    progress = Progress(
+        TextColumn("{task.description}"),
+        BarColumn(),
+        TextColumn("{task.percentage:>5.1f} %"),
+        TimeRemainingColumn(),
+        console=console,
+        transient=True,
+    )
+    with progress:
+        task = progress.add_task(label, total=None)
+
+        def update(done: int, total: int) -> None:
+            progress.update(task, completed=done, total=max(total, 1))
+
+        yield update
