@@ -1,0 +1,602 @@
+"""Mode classification, carrier location and the emission's layout in the spectrum.
+
+DESIGN.md section 3: AM/CW carrier = the carrier line; DSB carrier = the centre of
+symmetry of the two sidebands (with a tone, the mean of the two sideband lines); SSB
+needs ``--carrier`` or ``--tone``; ``--carrier`` always wins. A ``--carrier`` value
+within +/- fs/2 is an offset from the capture centre, a larger one an absolute RF
+frequency (which needs a known capture centre).
+
+Automatic classification (``--mode auto``), on the noise-subtracted spectrum ``s``:
+
+1. no line or band stands above the noise: no signal;
+2. the strongest line holds at least half the emission power: a carrier. Symmetric
+   sidebands about it above -40 dBc with a steady envelope make it AM, otherwise CW
+   (a keyed carrier's envelope sits near zero for a large fraction of the time);
+3. otherwise, the symmetry score ``sum_k s(f0 + k) s(f0 - k) / sum_k s(k)^2`` (the
+   autoconvolution of ``s`` at ``2 f0``, maximised over ``f0``) decides: >= 0.5 is DSB
+   with its carrier at that centre, below is single sideband, which cannot be placed
+   without ``--carrier`` or ``--tone`` (a :class:`~iqscope.errors.UsageError` says so).
+
+A two-tone SSB test signal is symmetric about its midpoint and is classified as DSB;
+``--mode two-tone`` says what it is.
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass, field
+from typing import Any, Final
+
+import numpy as np
+import numpy.typing as npt
+from scipy import fft as sp_fft
+
+from ..dsp._lines import (
+    BandPower,
+    LinePower,
+    Peak,
+    band_power,
+    bin_index,
+    find_peaks,
+    line_power,
+    lobe_half_width_bins,
+)
+from ..dsp._noise import NoiseFloor, noise_floor, spectrum_dof, sum_variance_factor
+from ..dsp._types import Spectrum
+from ..errors import UsageError
+from ._analysis import SignalInfo
+from ._context import AnalysisContext
+
+__all__ = [
+    "MODES",
+    "StreamStats",
+    "CoreContext",
+    "Layout",
+    "carrier_offset_from_arg",
+    "locate_signal",
+    "layout_of",
+    "stats_of",
+    "floor_of",
+    "db_ratio",
+    "compute_layout",
+    "symmetry_centre",
+]
+
+#: Modes a request may name.
+MODES: Final = ("auto", "cw", "am", "dsb", "usb", "lsb", "two-tone")
+
+#: Fraction of the emission power in the strongest line above which it is a carrier.
+_CARRIER_FRACTION: Final = 0.5
+#: Symmetry score above which a carrier-less emission is DSB.
+_SYMMETRY_DSB: Final = 0.5
+#: Sideband power (dBc) above which a carrier with symmetric sidebands is AM.
+_AM_SIDEBAND_DBC: Final = -40.0
+#: Fraction of envelope blocks below 10 % of the median amplitude that marks keying (CW).
+_KEYED_FRACTION: Final = 0.05
+
+
+@dataclass(frozen=True)
+class StreamStats:
+    """What the pipeline's single pass measured besides the spectrum."""
+
+    n_samples: int = 0
+    peak_power: float = 0.0
+    """max |x|^2, FS^2."""
+    mean_power: float = 0.0
+    """mean |x|^2, FS^2."""
+    dc: complex = 0j
+    """mean x (the DC offset), FS."""
+    n_clipped: int = 0
+    """Samples with |Re x| or |Im x| at or above ``clip_level``."""
+    clip_level: float = 1.0
+    n_nonfinite: int = 0
+    """Samples that were NaN/Inf (counted as 0)."""
+    max_component: float = 0.0
+    """Largest |Re x| or |Im x| seen."""
+    n_at_max_component: int = 0
+    """Samples whose |Re x| or |Im x| equals ``max_component`` (a pile-up hints at clipping)."""
+    block_mean_power: npt.NDArray[np.float64] = field(default_factory=lambda: np.zeros(0))
+    """Mean |x|^2 per envelope block."""
+    block_peak_power: npt.NDArray[np.float64] = field(default_factory=lambda: np.zeros(0))
+    """Max |x|^2 per envelope block."""
+    block_times_s: npt.NDArray[np.float64] = field(default_factory=lambda: np.zeros(0))
+    """Centre time of each envelope block, s."""
+
+    @property
+    def keyed_fraction(self) -> float:
+        """Fraction of envelope blocks whose RMS is below 10 % of the median RMS."""
+        b = self.block_mean_power
+        if b.size < 8:
+            return 0.0
+        med = float(np.median(b))
+        if med <= 0:
+            return 0.0
+        return float(np.mean(b < 0.01 * med))
+
+
+@dataclass(frozen=True)
+class CoreContext(AnalysisContext):
+    """The pipeline's context with the stream statistics and the noise-floor details."""
+
+    stats: StreamStats = field(default_factory=StreamStats)
+    floor: NoiseFloor | None = None
+    warnings: tuple[str, ...] = ()
+
+
+def stats_of(ctx: AnalysisContext) -> StreamStats | None:
+    """The stream statistics of a context built by the pipeline (None otherwise)."""
+    return getattr(ctx, "stats", None)
+
+
+def floor_of(ctx: AnalysisContext) -> NoiseFloor:
+    f = getattr(ctx, "floor", None)
+    if isinstance(f, NoiseFloor):
+        return f
+    return noise_floor(ctx.spectrum)
+
+
+def carrier_offset_from_arg(carrier_hz: float, sample_rate_hz: float, center_hz: float | None) -> float:
+    """Turn a ``--carrier`` value into an offset from the capture centre (Hz).
+
+    Within +/- fs/2 it already is one; beyond, it is an absolute RF frequency and needs
+    the capture centre.
+
+    Raises
+    ------
+    UsageError
+        An absolute frequency with no known centre, or one outside the captured band.
+    """
+    if not math.isfinite(carrier_hz):
+        raise UsageError(f"--carrier {carrier_hz!r} is not a number")
+    half = sample_rate_hz / 2.0
+    if -half <= carrier_hz <= half:
+        return float(carrier_hz)
+    if center_hz is None:
+        raise UsageError(
+            f"--carrier {carrier_hz:g} Hz is outside +/- fs/2 = {half:g} Hz, so it is an absolute "
+            "frequency, but the recording has no centre frequency: give the offset from the capture "
+            "centre, or the centre frequency (e.g. --center HZ)"
+        )
+    off = float(carrier_hz) - float(center_hz)
+    if not -half <= off <= half:
+        raise UsageError(
+            f"--carrier {carrier_hz:g} Hz lies {off:+g} Hz from the capture centre {center_hz:g} Hz, "
+            f"outside the captured band (+/- {half:g} Hz)"
+        )
+    return off
+
+
+def _excess(spectrum: Spectrum, floor: float) -> npt.NDArray[np.float64]:
+    return np.maximum(spectrum.psd - floor, 0.0)
+
+
+def symmetry_centre(s: npt.NDArray[np.float64], freqs: npt.NDArray[np.float64], bin_hz: float) -> tuple[float, float]:
+    """Centre of symmetry of a non-negative spectrum ``s`` and its score in [0, 1].
+
+    The autoconvolution ``c(u) = sum_k s(k) s(u - k)`` peaks at ``u = 2 f0`` for a spectrum
+    symmetric about ``f0``; the score is ``c(2 f0) / sum s^2`` (1 for perfect symmetry).
+    The peak is refined by a parabola through its three samples.
+    """
+    n = s.size
+    if n < 3 or not np.any(s > 0):
+        return float("nan"), 0.0
+    m = sp_fft.next_fast_len(2 * n)
+    S = sp_fft.rfft(s, m)
+    c = sp_fft.irfft(S * S, m)[: 2 * n - 1]
+    e = float(np.dot(s, s))
+    u = int(np.argmax(c))
+    score = float(c[u] / e) if e > 0 else 0.0
+    du = 0.0
+    if 0 < u < c.size - 1:
+        a, b, d = c[u - 1], c[u], c[u + 1]
+        den = a - 2 * b + d
+        if den < 0:
+            du = 0.5 * (a - d) / den
+    # index u in the convolution corresponds to bins i + j = u -> centre index u / 2
+    centre_idx = (u + du) / 2.0
+    return float(freqs[0] + centre_idx * bin_hz), min(score, 1.0)
+
+
+@dataclass(frozen=True)
+class Layout:
+    """Where the emission sits in the spectrum, shared by the core figure providers."""
+
+    mode: str
+    f0: float | None
+    """Carrier offset, Hz (None when not placed)."""
+    floor: NoiseFloor
+    h: int
+    """Lobe half-width, bins."""
+    gap_hz: float
+    """Half-width of the carrier's lobe, Hz: sidebands start beyond f0 +/- gap."""
+    has_signal: bool
+    lo_hz: float
+    """Lower edge of the emission band, Hz offset."""
+    hi_hz: float
+    """Upper edge of the emission band, Hz offset."""
+    artefact_mask: npt.NDArray[np.bool_]
+    """Bins occupied by receiver artefacts (DC line, images), left out of band powers."""
+    carrier: LinePower | None
+    """The carrier line at f0 (residual or full), if f0 is known."""
+    peaks: tuple[Peak, ...]
+    """Lines above the noise, strongest first."""
+    dc_line: LinePower | None
+    """A line at the capture centre, when one is detected."""
+    lines_dominate: bool
+    """True when lines hold >= 90 % of the emission power (tones: deterministic)."""
+    tone_lines: tuple[LinePower, ...] = ()
+    """The test-tone lines used (SSB with --tone: the wanted one; DSB: the two sidebands)."""
+    extra: dict[str, Any] = field(default_factory=dict)
+
+    def carrier_mask(self, spectrum: Spectrum) -> npt.NDArray[np.bool_]:
+        """Bins of the carrier lobe (f0 +/- gap)."""
+        if self.f0 is None:
+            return np.zeros(spectrum.psd.size, bool)
+        return np.abs(spectrum.freqs_hz - self.f0) <= self.gap_hz
+
+    def exclude(self, spectrum: Spectrum, carrier: bool = True) -> npt.NDArray[np.bool_]:
+        m = self.artefact_mask.copy()
+        if carrier:
+            m |= self.carrier_mask(spectrum)
+        return m
+
+    def band(
+        self, spectrum: Spectrum, lo: float, hi: float, *, carrier: bool = True, random: bool | None = None
+    ) -> BandPower:
+        """Noise-subtracted power in [lo, hi] without artefacts (and without the carrier lobe)."""
+        rnd = (not self.lines_dominate) if random is None else random
+        return band_power(
+            spectrum,
+            lo,
+            hi,
+            self.floor.psd,
+            floor_sigma_rel=self.floor.sigma_rel,
+            random_signal=rnd,
+            exclude=self.exclude(spectrum, carrier),
+        )
+
+
+def _grow(above: npt.NDArray[np.bool_], lo: int, hi: int, gap: int) -> tuple[int, int]:
+    """Extend [lo, hi] outwards over above-noise bins no more than ``gap`` bins apart."""
+    idx = np.nonzero(above)[0]
+    if idx.size == 0:
+        return lo, hi
+    k = int(np.searchsorted(idx, lo)) - 1
+    edge = lo
+    while k >= 0 and idx[k] >= edge - gap:
+        edge = int(idx[k])
+        k -= 1
+    j = int(np.searchsorted(idx, hi, side="right"))
+    top = hi
+    while j < idx.size and idx[j] <= top + gap:
+        top = int(idx[j])
+        j += 1
+    return min(lo, edge), max(hi, top)
+
+
+def _above_noise(spectrum: Spectrum, floor: float, h: int, sigmas: float = 5.0) -> npt.NDArray[np.bool_]:
+    """Bins whose lobe-wide sum stands ``sigmas`` noise sigmas above the floor."""
+    psd = spectrum.psd
+    n = psd.size
+    m = 2 * h + 1
+    k = spectrum_dof(spectrum)
+    nfft = int(getattr(spectrum, "nfft", 0) or n)
+    sig = floor * math.sqrt(sum_variance_factor(spectrum.window, nfft, m) / k)
+    c = np.concatenate(([0.0], np.cumsum(psd - floor)))
+    i = np.arange(n)
+    a = np.clip(i - h, 0, n)
+    b = np.clip(i + h + 1, 0, n)
+    lobe = c[b] - c[a]
+    return np.asarray(lobe > sigmas * sig, dtype=bool)
+
+
+def _dc_line(spectrum: Spectrum, floor: NoiseFloor, h: int) -> LinePower | None:
+    if spectrum.psd.size < 4 * h + 8:
+        return None
+    lp = line_power(spectrum, 0.0, floor.psd, search_bins=1, floor_sigma_rel=floor.sigma_rel)
+    return lp if lp.detected else None
+
+
+def locate_signal(
+    spectrum: Spectrum,
+    floor: NoiseFloor,
+    mode: str,
+    *,
+    carrier_hz: float | None = None,
+    tone_hz: float | None = None,
+    center_hz: float | None = None,
+    keyed_fraction: float = 0.0,
+) -> SignalInfo:
+    """Resolve the mode and place the carrier (DESIGN.md section 3).
+
+    Parameters
+    ----------
+    spectrum : Spectrum
+        The averaged spectrum of the recording.
+    floor : NoiseFloor
+        Its noise floor.
+    mode : str
+        One of :data:`MODES`.
+    carrier_hz : float, optional
+        ``--carrier`` (offset within +/- fs/2, else absolute RF); always wins.
+    tone_hz : float, optional
+        ``--tone``: the test tone's audio frequency (SSB), Hz.
+    center_hz : float, optional
+        Capture centre frequency, Hz.
+    keyed_fraction : float
+        Fraction of envelope blocks near zero (keying), from the stream statistics.
+
+    Returns
+    -------
+    SignalInfo
+        Mode ``"none"`` with no carrier when nothing stands above the noise in auto mode.
+
+    Raises
+    ------
+    UsageError
+        SSB without ``--carrier`` or ``--tone``; an unknown mode; an unusable ``--carrier``.
+    """
+    mode = (mode or "auto").lower()
+    if mode not in MODES:
+        raise UsageError(f"unknown --mode {mode!r}; use one of {', '.join(MODES)}")
+    fs = spectrum.sample_rate_hz
+    given = None if carrier_hz is None else carrier_offset_from_arg(carrier_hz, fs, center_hz)
+
+    def info(m: str, f0: float | None, how: str, detected: bool) -> SignalInfo:
+        rf = None if (f0 is None or center_hz is None) else float(center_hz) + f0
+        return SignalInfo(mode=m, carrier_offset_hz=f0, carrier_frequency_hz=rf, how=how, mode_detected=detected)
+
+    usable = spectrum.n_averages > 0 and math.isfinite(floor.psd) and spectrum.psd.size >= 8
+    peaks = find_peaks(spectrum, floor.psd, max_peaks=16) if usable else []
+    h = lobe_half_width_bins(spectrum) if usable else 5
+
+    # -- explicit modes ---------------------------------------------------------------
+    if mode in ("usb", "lsb"):
+        if given is not None:
+            return info(mode, given, "given with --carrier", False)
+        if tone_hz is None:
+            raise UsageError(
+                f"--mode {mode} needs the carrier: add --carrier HZ (offset from the capture centre, "
+                "or absolute RF) or --tone HZ (the test tone's audio frequency)"
+            )
+        if not peaks:
+            return info(mode, None, "no test-tone line above the noise", False)
+        f_line = peaks[0].frequency_hz
+        f0 = f_line - tone_hz if mode == "usb" else f_line + tone_hz
+        return info(mode, f0, f"test-tone line at {f_line:.2f} Hz minus --tone", False)
+    if mode == "two-tone":
+        if given is not None:
+            return info(mode, given, "given with --carrier", False)
+        return info(mode, None, "two-tone test: give --carrier to place the suppressed carrier", False)
+
+    if given is not None and mode != "auto":
+        return info(mode, given, "given with --carrier", False)
+
+    if not usable or not peaks and not np.any(_above_noise(spectrum, floor.psd, h)):
+        if mode == "auto":
+            return info("none" if given is None else "cw", given, "no signal above the noise floor", True)
+        return info(mode, given, "no signal above the noise floor", False)
+
+    s = _excess(spectrum, floor.psd)
+    total = float(s.sum()) * spectrum.bin_hz
+    strongest = peaks[0] if peaks else None
+
+    if mode in ("cw", "am"):
+        if given is not None:
+            return info(mode, given, "given with --carrier", False)
+        if strongest is None:
+            return info(mode, None, "no carrier line above the noise", False)
+        return info(mode, strongest.frequency_hz, "strongest line (the carrier)", False)
+
+    if mode == "dsb":
+        if given is not None:
+            return info(mode, given, "given with --carrier", False)
+        return info(mode, *_dsb_centre(spectrum, s, peaks, h), False)
+
+    # -- auto -------------------------------------------------------------------------
+    if tone_hz is not None and given is None:
+        # A test tone implies SSB; the side is where a residual carrier or the opposite
+        # sideband line stands out.
+        if strongest is None:
+            return info("none", None, "no test-tone line above the noise", True)
+        f_line = strongest.frequency_hz
+        best: tuple[float, str, float] | None = None
+        for side, f0 in (("usb", f_line - tone_hz), ("lsb", f_line + tone_hz)):
+            c = line_power(spectrum, f0, floor.psd, search_bins=2)
+            mirror = line_power(spectrum, 2 * f0 - f_line, floor.psd, search_bins=2)
+            score = max(c.power if c.detected else 0.0, mirror.power if mirror.detected else 0.0)
+            if best is None or score > best[2]:
+                best = (f0, side, score)
+        assert best is not None
+        if best[2] <= 0:
+            raise UsageError(
+                "--tone alone cannot tell upper from lower sideband here (no residual carrier or "
+                "opposite sideband above the noise): add --mode usb or --mode lsb"
+            )
+        return info(best[1], best[0], f"test-tone line at {f_line:.2f} Hz and --tone; side from the residual carrier", True)
+
+    if given is not None:
+        # Classify with the carrier known: carrier line dominant -> CW/AM, else DSB/SSB.
+        c = line_power(spectrum, given, floor.psd, search_bins=2)
+        if c.detected and c.power >= _CARRIER_FRACTION * total:
+            m = _am_or_cw(spectrum, s, given, c.power, h, keyed_fraction)
+            return info(m, given, "given with --carrier", True)
+        mirror_score = _symmetry_about(s, spectrum, given)
+        return info("dsb" if mirror_score >= _SYMMETRY_DSB else _ssb_side(s, spectrum, given), given, "given with --carrier", True)
+
+    assert strongest is not None
+    if strongest.power >= _CARRIER_FRACTION * total:
+        m = _am_or_cw(spectrum, s, strongest.frequency_hz, strongest.power, h, keyed_fraction)
+        return info(m, strongest.frequency_hz, "strongest line (the carrier)", True)
+    f0, how = _dsb_centre(spectrum, s, peaks, h)
+    score = _symmetry_about(s, spectrum, f0) if f0 is not None else 0.0
+    if f0 is not None and score >= _SYMMETRY_DSB:
+        return info("dsb", f0, how, True)
+    raise UsageError(
+        "the signal looks like single sideband (not symmetric about any carrier): add --carrier HZ "
+        "(offset from the capture centre, or absolute RF) or --tone HZ with --mode usb or --mode lsb"
+    )
+
+
+def _symmetry_about(s: npt.NDArray[np.float64], spectrum: Spectrum, f0: float) -> float:
+    """Symmetry score of ``s`` about ``f0`` (sum s(f0+k) s(f0-k) / sum s^2)."""
+    n = s.size
+    c = (f0 - float(spectrum.freqs_hz[0])) / spectrum.bin_hz
+    i = np.arange(n)
+    j = np.rint(2 * c - i).astype(np.int64)
+    ok = (j >= 0) & (j < n)
+    e = float(np.dot(s, s))
+    return float(np.dot(s[ok], s[j[ok]]) / e) if e > 0 else 0.0
+
+
+def _ssb_side(s: npt.NDArray[np.float64], spectrum: Spectrum, f0: float) -> str:
+    f = spectrum.freqs_hz
+    return "usb" if float(s[f > f0].sum()) >= float(s[f < f0].sum()) else "lsb"
+
+
+def _am_or_cw(
+    spectrum: Spectrum, s: npt.NDArray[np.float64], fc: float, pc: float, h: int, keyed_fraction: float
+) -> str:
+    if keyed_fraction >= _KEYED_FRACTION:
+        return "cw"
+    f = spectrum.freqs_hz
+    gap = (h + 0.5) * spectrum.bin_hz
+    up = float(s[f > fc + gap].sum()) * spectrum.bin_hz
+    dn = float(s[f < fc - gap].sum()) * spectrum.bin_hz
+    if pc <= 0 or min(up, dn) <= 0:
+        return "cw"
+    sb_dbc = 10 * math.log10((up + dn) / pc)
+    sym = _symmetry_about(np.where(np.abs(f - fc) > gap, s, 0.0), spectrum, fc)
+    return "am" if sb_dbc > _AM_SIDEBAND_DBC and sym >= _SYMMETRY_DSB else "cw"
+
+
+def _dsb_centre(
+    spectrum: Spectrum, s: npt.NDArray[np.float64], peaks: list[Peak], h: int
+) -> tuple[float | None, str]:
+    """DSB carrier: centre of symmetry; with a pair of sideband lines, their mean."""
+    f0, score = symmetry_centre(s, spectrum.freqs_hz, spectrum.bin_hz)
+    if not math.isfinite(f0):
+        return None, "no signal above the noise floor"
+    # Refine with the strongest line and its mirror about the centre (a test tone).
+    tol = (h + 1) * spectrum.bin_hz
+    gap = (h + 0.5) * spectrum.bin_hz
+    for p in peaks[:4]:
+        if abs(p.frequency_hz - f0) <= gap:
+            continue  # the residual carrier itself
+        target = 2 * f0 - p.frequency_hz
+        for q in peaks:
+            if q is p or abs(q.frequency_hz - target) > tol:
+                continue
+            if q.power < 0.1 * p.power:
+                break
+            fm = 0.5 * (p.frequency_hz + q.frequency_hz)
+            return fm, "mean of the two sideband lines (DSB with a tone)"
+        break
+    return f0, "centre of symmetry of the sidebands"
+
+
+def db_ratio(num: float, num_sigma: float, den: float, den_sigma: float) -> tuple[float, float]:
+    """``10 log10(num / den)`` and its 1-sigma by first-order propagation (dB).
+
+    ``sigma = (10 / ln 10) sqrt((s_num / num)^2 + (s_den / den)^2)``.
+    """
+    if num <= 0 or den <= 0:
+        return float("nan"), float("nan")
+    v = 10.0 * math.log10(num / den)
+    s = 10.0 / math.log(10.0) * math.hypot(num_sigma / num, den_sigma / den)
+    return v, s
+
+
+_CACHE: dict[int, tuple[AnalysisContext, Layout]] = {}
+
+
+def layout_of(ctx: AnalysisContext) -> Layout:
+    """The emission's layout for a context (computed once per context and cached)."""
+    hit = _CACHE.get(id(ctx))
+    if hit is not None and hit[0] is ctx:
+        return hit[1]
+    lay = compute_layout(ctx.spectrum, floor_of(ctx), ctx.signal, tone_hz=ctx.request.tone_hz)
+    if len(_CACHE) > 8:
+        _CACHE.clear()
+    _CACHE[id(ctx)] = (ctx, lay)
+    return lay
+
+
+def compute_layout(
+    spectrum: Spectrum, floor: NoiseFloor, signal: SignalInfo, *, tone_hz: float | None = None
+) -> Layout:
+    """Find the emission band, the carrier line, the artefact bins and the test-tone lines."""
+    n = spectrum.psd.size
+    usable = spectrum.n_averages > 0 and math.isfinite(floor.psd) and n >= 8
+    h = lobe_half_width_bins(spectrum) if usable else 5
+    gap = (h + 0.5) * spectrum.bin_hz
+    empty = np.zeros(n, bool)
+    f0 = signal.carrier_offset_hz
+    if not usable:
+        return Layout(signal.mode, f0, floor, h, gap, False, 0.0, 0.0, empty, None, (), None, False)
+    peaks = tuple(find_peaks(spectrum, floor.psd, max_peaks=32))
+    above = _above_noise(spectrum, floor.psd, h)
+    # A line at the capture centre is a receiver artefact unless the carrier sits there.
+    dc = _dc_line(spectrum, floor, h)
+    mask = empty.copy()
+    if dc is not None and (f0 is None or abs(f0) > 2 * gap):
+        mask |= np.abs(spectrum.freqs_hz) <= gap
+        above = above & ~mask
+    if not above.any():
+        carrier = None
+        if f0 is not None:
+            carrier = line_power(spectrum, f0, floor.psd, search_bins=2, floor_sigma_rel=floor.sigma_rel)
+        return Layout(signal.mode, f0, floor, h, gap, False, 0.0, 0.0, mask, carrier, peaks, dc, False)
+    seeds: list[int] = []
+    strongest = next((p for p in peaks if not mask[p.index]), None)
+    if strongest is not None:
+        seeds.append(strongest.index)
+    if f0 is not None:
+        seeds.append(bin_index(spectrum, f0))
+        if strongest is not None and signal.mode in ("dsb", "am"):
+            seeds.append(bin_index(spectrum, 2 * f0 - strongest.frequency_hz))
+    if not seeds:
+        seeds.append(int(np.argmax(np.where(mask, -np.inf, spectrum.psd))))
+    lo_i, hi_i = min(seeds), max(seeds)
+    gap_bins = max(4 * (2 * h + 1), int(math.ceil(150.0 / spectrum.bin_hz)))
+    lo_i, hi_i = _grow(above, lo_i, hi_i, gap_bins)
+    lo_hz = float(spectrum.freqs_hz[lo_i]) - h * spectrum.bin_hz
+    hi_hz = float(spectrum.freqs_hz[hi_i]) + h * spectrum.bin_hz
+    carrier = None
+    if f0 is not None:
+        carrier = line_power(spectrum, f0, floor.psd, search_bins=2, floor_sigma_rel=floor.sigma_rel)
+    # Lines' share of the emission power decides whether band powers are deterministic.
+    inband = [p for p in peaks if lo_hz <= p.frequency_hz <= hi_hz and not mask[p.index]]
+    sel = (spectrum.freqs_hz >= lo_hz) & (spectrum.freqs_hz <= hi_hz) & ~mask
+    band_total = float(np.maximum(spectrum.psd[sel] - floor.psd, 0).sum()) * spectrum.bin_hz
+    line_total = sum(max(p.power, 0.0) for p in inband[:12])
+    lines_dominate = band_total > 0 and line_total >= 0.9 * band_total
+    # Test-tone lines.
+    tones: list[LinePower] = []
+    if f0 is not None and tone_hz is not None and signal.mode in ("usb", "lsb"):
+        sgn = 1.0 if signal.mode == "usb" else -1.0
+        tones.append(line_power(spectrum, f0 + sgn * tone_hz, floor.psd, search_bins=2, floor_sigma_rel=floor.sigma_rel))
+    elif f0 is not None and signal.mode in ("dsb", "am") and lines_dominate:
+        side = [p for p in inband if abs(p.frequency_hz - f0) > gap]
+        if side:
+            p = side[0]
+            mirror = 2 * f0 - p.frequency_hz
+            a = line_power(spectrum, p.frequency_hz, floor.psd, search_bins=1, floor_sigma_rel=floor.sigma_rel)
+            b = line_power(spectrum, mirror, floor.psd, search_bins=2, floor_sigma_rel=floor.sigma_rel)
+            tones = sorted((a, b), key=lambda lp: lp.frequency_hz)
+    return Layout(
+        mode=signal.mode,
+        f0=f0,
+        floor=floor,
+        h=h,
+        gap_hz=gap,
+        has_signal=True,
+        lo_hz=lo_hz,
+        hi_hz=hi_hz,
+        artefact_mask=mask,
+        carrier=carrier,
+        peaks=peaks,
+        dc_line=dc,
+        lines_dominate=bool(lines_dominate),
+        tone_lines=tuple(tones),
+    )

@@ -1,0 +1,461 @@
+"""The analysis pipeline: one streaming pass, signal location, then figure providers.
+
+:func:`analyse` is the one entry point (used by ``iqscope grade``)::
+
+    analyse(recording, request=AnalysisRequest(), providers=None) -> Analysis
+
+1. **One pass** over the recording in chunks (never the whole file in memory) builds
+   the averaged, calibrated spectrum (4-term Blackman-Harris, 50 % overlap, batched
+   complex64 FFTs), the level statistics (peak, mean, DC, clipping), an envelope trace
+   (mean and peak power of about 2000 blocks) and a small spectrogram, all from the
+   same samples and the same FFTs.
+2. The noise floor is estimated, the mode classified and the carrier placed
+   (:mod:`.locate`).
+3. Each figure provider in :data:`PROVIDERS` (or ``providers``) is called in order with
+   the shared :class:`~iqscope.measure.AnalysisContext` and returns a
+   :class:`~iqscope.measure.FigureSet`. A provider that raises does not stop the
+   others: its exception becomes a warning, and the measurements it declares in an
+   optional ``provides`` attribute (``{name: unit}``) are reported with value null and
+   the reason.
+
+Resolution: by default the bin spacing is at most :data:`DEFAULT_BIN_HZ` (6.25 Hz), so
+a carrier 100 Hz from a sideband is 16 bins away, outside both main lobes (+/- 4 bins
+for Blackman-Harris), with room for the local noise estimate between them; a short
+recording gets a coarser resolution (at least :data:`MIN_AVERAGES` averages) and a
+warning. ``request.resolution_hz`` (``--resolution``) sets the bin spacing.
+
+Adding a provider: append it to :data:`PROVIDERS` (one line). It receives the context
+(``ctx.spectrum``, ``ctx.signal``, ``ctx.noise_floor_psd`` ...) and may stream the
+recording again from ``ctx.recording`` if it must.
+"""
+
+from __future__ import annotations
+
+import math
+import time
+from collections.abc import Callable, Sequence
+from typing import Any, Final
+
+import numpy as np
+import numpy.typing as npt
+from scipy import fft as sp_fft
+
+from ..dsp._envelope import block_envelope
+from ..dsp._noise import noise_floor
+from ..dsp._spectrum import AveragedSpectrum, SpectrumAccumulator
+from ..io._recording import Recording
+from ._analysis import Analysis, RecordingInfo, Trace
+from ._context import AnalysisContext, AnalysisRequest, FigureProvider, FigureSet
+from ._result import Artefact, Measurement, failed
+from .artefacts import artefact_figures
+from .bandwidth import bandwidth_figures
+from .carrier import carrier_figures
+from .levels import level_figures
+from .locate import CoreContext, StreamStats, compute_layout, locate_signal
+from .modulation import modulation_figures
+from .sidebands import sideband_figures
+
+__all__ = [
+    "PROVIDERS",
+    "MEASUREMENT_ORDER",
+    "DEFAULT_BIN_HZ",
+    "MIN_AVERAGES",
+    "Plan",
+    "plan_pass",
+    "analyse",
+]
+
+#: Default largest bin spacing, Hz (sidebands 100 Hz from a carrier are 16 bins away).
+DEFAULT_BIN_HZ: Final = 6.25
+#: Fewest averaged segments a default-resolution spectrum may have.
+MIN_AVERAGES: Final = 8
+#: Window of the analysis spectrum (>= 90 dB sidelobe rejection).
+WINDOW: Final = "blackmanharris"
+#: Segment overlap of the analysis spectrum.
+OVERLAP: Final = 0.5
+#: Number of points of the envelope trace.
+ENVELOPE_POINTS: Final = 2048
+#: Largest number of spectrogram rows and columns.
+SPECTROGRAM_ROWS: Final = 128
+SPECTROGRAM_COLS: Final = 512
+#: Largest chunk read at once, samples (complex64: 32 MB).
+MAX_CHUNK: Final = 1 << 22
+
+#: Figure providers run in order. Core figures first; others append theirs (one line each).
+PROVIDERS: list[FigureProvider] = [
+    carrier_figures,
+    sideband_figures,
+    modulation_figures,
+    bandwidth_figures,
+    artefact_figures,
+    level_figures,
+]
+
+#: Report order of the stable measurement keys (DESIGN.md section 4); others follow.
+MEASUREMENT_ORDER: Final = (
+    "carrier_suppression_db",
+    "carrier_below_pep_db",
+    "opposite_sideband_suppression_db",
+    "sideband_balance_db",
+    "modulation_index",
+    "occupied_bandwidth_hz",
+    "bandwidth_26db_hz",
+    "imd3_dbc",
+    "imd5_dbc",
+    "imd3_db_pep",
+    "frequency_offset_hz",
+    "drift_hz_per_min",
+    "drift_peak_to_peak_hz",
+    "noise_floor_dbfs_per_hz",
+    "peak_dbfs",
+    "clipped_fraction",
+)
+
+
+class Plan:
+    """Segment length, overlap and chunking of the single pass."""
+
+    def __init__(self, nfft: int, overlap: float, chunk: int, warnings: tuple[str, ...]) -> None:
+        self.nfft = nfft
+        self.overlap = overlap
+        self.chunk = chunk
+        self.warnings = warnings
+
+    def __repr__(self) -> str:
+        return f"Plan(nfft={self.nfft}, overlap={self.overlap}, chunk={self.chunk})"
+
+
+def _prev_fast_len(n: int) -> int:
+    """Largest 5-smooth length <= n (n >= 1)."""
+    p = 1
+    while p * 2 <= n:
+        p *= 2
+    best = p
+    for m in range(n, max(p, n - 4096), -1):
+        if sp_fft.next_fast_len(m) == m:
+            best = max(best, m)
+            break
+    return best
+
+
+def plan_pass(sample_rate_hz: float, n_samples: int, resolution_hz: float | None = None) -> Plan:
+    """Choose the FFT length, overlap and chunk size for a recording.
+
+    Parameters
+    ----------
+    sample_rate_hz : float
+        Sample rate, Hz.
+    n_samples : int
+        Length of the recording.
+    resolution_hz : float, optional
+        Requested bin spacing, Hz (``--resolution``); default :data:`DEFAULT_BIN_HZ`.
+
+    Returns
+    -------
+    Plan
+    """
+    fs = float(sample_rate_hz)
+    warnings: list[str] = []
+    if resolution_hz is not None and not (math.isfinite(resolution_hz) and resolution_hz > 0):
+        raise ValueError(f"{resolution_hz=} must be a positive number of Hz")
+    target = DEFAULT_BIN_HZ if resolution_hz is None else float(resolution_hz)
+    nfft = int(sp_fft.next_fast_len(max(1, int(math.ceil(fs / target)))))
+    step_frac = 1.0 - OVERLAP
+    max_nfft = int(n_samples / (1.0 + (MIN_AVERAGES - 1) * step_frac)) if resolution_hz is None else n_samples
+    if n_samples < 16:
+        nfft = max(1, n_samples)
+    elif nfft > max_nfft:
+        new = max(16, _prev_fast_len(max(16, max_nfft)))
+        warnings.append(
+            f"the recording is short ({n_samples} samples): resolution {fs / new:.3g} Hz instead of "
+            f"{fs / nfft:.3g} Hz; lines closer than about {8 * fs / new:.3g} Hz are not separated"
+        )
+        nfft = new
+    step = max(1, int(round(nfft * step_frac)))
+    total_segments = max(1, (n_samples - nfft) // step + 1) if n_samples >= nfft else 1
+    per_row = max(1, math.ceil(total_segments / SPECTROGRAM_ROWS))
+    chunk = per_row * step
+    if chunk > MAX_CHUNK:
+        chunk = max(step, (MAX_CHUNK // step) * step)
+    chunk = max(chunk, min(1 << 16, max(n_samples, 1)))
+    return Plan(nfft=nfft, overlap=OVERLAP, chunk=int(chunk), warnings=tuple(warnings))
+
+
+class _Levels:
+    """Fast float32 level statistics of a stream (peak, mean, DC, clipping)."""
+
+    def __init__(self, clip_level: float) -> None:
+        self.clip = float(clip_level)
+        self.n = 0
+        self.sum_p = 0.0
+        self.peak = 0.0
+        self.dc = 0j
+        self.clipped = 0
+        self.nonfinite = 0
+        self.max_comp = 0.0
+        self.n_at_max = 0
+
+    def update(self, x: npt.NDArray[np.complex64]) -> tuple[npt.NDArray[np.complex64], npt.NDArray[np.float32]]:
+        v = x.view(np.float32)
+        p = v[0::2] * v[0::2]
+        p += v[1::2] * v[1::2]
+        s = float(p.sum(dtype=np.float64))
+        if not math.isfinite(s):
+            bad = ~np.isfinite(x)
+            self.nonfinite += int(bad.sum())
+            x = np.where(bad, np.complex64(0), x).astype(np.complex64)
+            v = x.view(np.float32)
+            p = v[0::2] * v[0::2]
+            p += v[1::2] * v[1::2]
+            s = float(p.sum(dtype=np.float64))
+        self.n += x.size
+        self.sum_p += s
+        self.peak = max(self.peak, float(p.max()))
+        self.dc += complex(np.sum(x, dtype=np.complex128))
+        vmax = max(float(v.max()), -float(v.min()))
+        if vmax >= self.clip:
+            self.clipped += int(np.count_nonzero((np.abs(x.real) >= self.clip) | (np.abs(x.imag) >= self.clip)))
+        if vmax > self.max_comp:
+            self.max_comp = vmax
+            self.n_at_max = int(np.count_nonzero(np.abs(v) == vmax))
+        elif vmax == self.max_comp and vmax > 0:
+            self.n_at_max += int(np.count_nonzero(np.abs(v) == vmax))
+        return x, p
+
+
+def _db(x: npt.NDArray[np.float64]) -> npt.NDArray[np.float64]:
+    return np.asarray(10.0 * np.log10(np.maximum(x, 1e-30)), dtype=np.float64)
+
+
+def _reduce_cols(row: npt.NDArray[np.float64], cols: int) -> npt.NDArray[np.float64]:
+    n = row.size
+    g = max(1, math.ceil(n / cols))
+    m = (n // g) * g
+    out = row[:m].reshape(-1, g).mean(axis=1)
+    if m < n:
+        out = np.concatenate((out, [row[m:].mean()]))
+    return out
+
+
+def _stream(
+    recording: Recording, plan: Plan, progress: Callable[[int, int], None] | None
+) -> tuple[AveragedSpectrum, StreamStats, Trace | None, Trace | None]:
+    fs = recording.sample_rate_hz
+    n = recording.n_samples
+    acc = SpectrumAccumulator(max(plan.nfft, 1), fs, window=WINDOW, overlap=plan.overlap)
+    clip = float(getattr(recording, "clip_level", 1.0) or 1.0)
+    lev = _Levels(clip)
+    env_block = max(1, n // ENVELOPE_POINTS)
+    env_mean: list[npt.NDArray[np.float64]] = []
+    env_peak: list[npt.NDArray[np.float64]] = []
+    env_count: list[npt.NDArray[np.int64]] = []
+    rows: list[npt.NDArray[np.float64]] = []
+    row_t: list[float] = []
+    done = 0
+    for block in recording.chunks(plan.chunk):
+        x = np.ascontiguousarray(block, dtype=np.complex64)
+        x, p = lev.update(x)
+        be = block_envelope(p, max(1, round(x.size / env_block)))
+        env_mean.append(be.mean_power)
+        env_peak.append(be.peak_power)
+        env_count.append(be.n_samples)
+        acc.update(x)
+        part, cnt = acc.take_partial()
+        if cnt:
+            rows.append(_reduce_cols(part, SPECTROGRAM_COLS))
+            row_t.append((done + x.size / 2.0) / fs)
+        done += x.size
+        if progress is not None:
+            progress(done, n)
+    spectrum = acc.result()
+    counts = np.concatenate(env_count) if env_count else np.zeros(0, np.int64)
+    starts = np.concatenate(([0], np.cumsum(counts)[:-1])) if counts.size else np.zeros(0)
+    times = (starts + counts / 2.0) / fs
+    stats = StreamStats(
+        n_samples=lev.n,
+        peak_power=lev.peak,
+        mean_power=lev.sum_p / lev.n if lev.n else 0.0,
+        dc=lev.dc / lev.n if lev.n else 0j,
+        n_clipped=lev.clipped,
+        clip_level=clip,
+        n_nonfinite=lev.nonfinite,
+        max_component=lev.max_comp,
+        n_at_max_component=lev.n_at_max,
+        block_mean_power=np.concatenate(env_mean) if env_mean else np.zeros(0),
+        block_peak_power=np.concatenate(env_peak) if env_peak else np.zeros(0),
+        block_times_s=np.asarray(times, dtype=np.float64),
+    )
+    env_trace = None
+    if stats.block_mean_power.size:
+        env_trace = Trace(
+            x=stats.block_times_s,
+            y=_db(stats.block_mean_power),
+            x_label="Time (s)",
+            y_label="Mean power (dBFS)",
+            extra={"peak_dbfs": _db(stats.block_peak_power), "block_samples": env_block},
+        )
+    spec_trace = None
+    if rows:
+        img = np.vstack(rows)
+        if img.shape[0] > SPECTROGRAM_ROWS:  # merge neighbouring rows
+            g = math.ceil(img.shape[0] / SPECTROGRAM_ROWS)
+            m = (img.shape[0] // g) * g
+            tt = np.asarray(row_t)
+            img = img[:m].reshape(-1, g, img.shape[1]).mean(axis=1)
+            row_t = list(tt[:m].reshape(-1, g).mean(axis=1))
+        cols = _reduce_cols(spectrum.freqs_hz, SPECTROGRAM_COLS)
+        spec_trace = Trace(
+            x=np.asarray(cols, dtype=np.float64),
+            y=_db(img).astype(np.float32).astype(np.float64),
+            x_label="Frequency offset (Hz)",
+            y_label="Time (s)",
+            extra={"rows": np.asarray(row_t, dtype=np.float64), "z_label": "PSD (dBFS/Hz)"},
+        )
+    return spectrum, stats, env_trace, spec_trace
+
+
+def _run_provider(provider: FigureProvider, ctx: AnalysisContext) -> tuple[FigureSet, float]:
+    t0 = time.perf_counter()
+    name = getattr(provider, "__name__", type(provider).__name__)
+    try:
+        fs = provider(ctx)
+        if not isinstance(fs, FigureSet):
+            raise TypeError(f"returned {type(fs).__name__}, not FigureSet")
+    except Exception as exc:  # noqa: BLE001 - one failing provider must not sink the others
+        reason = f"{name} failed: {type(exc).__name__}: {exc}"
+        fs = FigureSet(warnings=[reason])
+        provides: Any = getattr(provider, "provides", None)
+        if isinstance(provides, dict):
+            for key, unit in provides.items():
+                fs.measurements[str(key)] = failed(str(unit), f"not measured ({reason})")
+    return fs, time.perf_counter() - t0
+
+
+def _ordered(meas: dict[str, Measurement]) -> dict[str, Measurement]:
+    out = {k: meas[k] for k in MEASUREMENT_ORDER if k in meas}
+    out.update({k: v for k, v in meas.items() if k not in out})
+    return out
+
+
+def analyse(
+    recording: Recording,
+    request: AnalysisRequest = AnalysisRequest(),
+    providers: Sequence[FigureProvider] | None = None,
+) -> Analysis:
+    """Analyse a recording: one streaming pass, locate the signal, run the figure providers.
+
+    Parameters
+    ----------
+    recording : Recording
+        Any reader's recording (or an :class:`~iqscope.io.ArrayRecording`); read in chunks.
+    request : AnalysisRequest
+        Mode, ``--carrier``, ``--tone``, ``--resolution`` ..., and a progress callback
+        ``request.progress(samples_done, samples_total)``.
+    providers : sequence of FigureProvider, optional
+        Providers to run instead of :data:`PROVIDERS`.
+
+    Returns
+    -------
+    Analysis
+        Recording facts, the resolved signal, the measurements (stable keys of DESIGN.md
+        section 4, in report order), receiver artefacts, the spectrum, markers and traces
+        ("envelope", "spectrogram").
+
+    Raises
+    ------
+    UsageError
+        SSB without ``--carrier``/``--tone``, an absolute ``--carrier`` without a known
+        centre, an unknown mode, a non-positive ``--resolution``.
+
+    Notes
+    -----
+    Memory stays bounded by the chunk size (at most 4 Mi samples) whatever the file size.
+
+    References
+    ----------
+    Welch 1967 and Heinzel et al. 2002 for the spectrum (see :mod:`iqscope.dsp`);
+    DESIGN.md section 3 for the definitions.
+    """
+    from ..errors import UsageError
+
+    if request.resolution_hz is not None and not (
+        math.isfinite(request.resolution_hz) and request.resolution_hz > 0
+    ):
+        raise UsageError(f"--resolution {request.resolution_hz!r} must be a positive number of Hz")
+    fs = recording.sample_rate_hz
+    n = recording.n_samples
+    plan = plan_pass(fs, n, request.resolution_hz)
+    warnings: list[str] = list(plan.warnings)
+    spectrum, stats, env_trace, spec_trace = _stream(recording, plan, request.progress)
+    warnings.extend(w for w in getattr(recording, "warnings", ()) if w not in warnings)
+    floor = noise_floor(spectrum)
+    if n < 16:
+        warnings.append(f"the recording has {n} sample(s): too short to measure")
+    signal = locate_signal(
+        spectrum,
+        floor,
+        request.mode,
+        carrier_hz=request.carrier_hz,
+        tone_hz=request.tone_hz,
+        center_hz=recording.center_frequency_hz,
+        keyed_fraction=stats.keyed_fraction,
+    )
+    layout = compute_layout(spectrum, floor, signal, tone_hz=request.tone_hz)
+    signal_power = 0.0
+    if layout.has_signal:
+        b = layout.band(spectrum, layout.lo_hz, layout.hi_hz, carrier=False)
+        signal_power = max(b.power, 0.0)
+    ctx = CoreContext(
+        recording=recording,
+        request=request,
+        spectrum=spectrum,
+        signal=signal,
+        noise_floor_psd=floor.psd if math.isfinite(floor.psd) else 0.0,
+        mean_power=stats.mean_power,
+        signal_power=signal_power,
+        peak_power=stats.peak_power,
+        stats=stats,
+        floor=floor,
+        warnings=tuple(warnings),
+    )
+    from .locate import _CACHE
+
+    _CACHE[id(ctx)] = (ctx, layout)
+    measurements: dict[str, Measurement] = {}
+    artefacts: list[Artefact] = []
+    markers: dict[str, float] = {}
+    traces: dict[str, Trace] = {}
+    if env_trace is not None:
+        traces["envelope"] = env_trace
+    if spec_trace is not None:
+        traces["spectrogram"] = spec_trace
+    for provider in PROVIDERS if providers is None else providers:
+        fset, _ = _run_provider(provider, ctx)
+        for k, m in fset.measurements.items():
+            measurements.setdefault(k, m)
+        artefacts.extend(fset.artefacts)
+        markers.update({k: float(v) for k, v in fset.markers.items() if v is not None and math.isfinite(v)})
+        traces.update(fset.traces)
+        warnings.extend(w for w in fset.warnings if w not in warnings)
+    _CACHE.pop(id(ctx), None)
+    if layout.has_signal:
+        markers.setdefault("band_lower", layout.lo_hz)
+        markers.setdefault("band_upper", layout.hi_hz)
+    info = RecordingInfo(
+        path=str(recording.path) if recording.path is not None else recording.name,
+        format=recording.format,
+        sample_rate_hz=fs,
+        center_frequency_hz=recording.center_frequency_hz,
+        n_samples=n,
+        datatype=recording.datatype,
+    )
+    return Analysis(
+        recording=info,
+        signal=signal,
+        measurements=_ordered(measurements),
+        artefacts=tuple(artefacts),
+        spectrum=spectrum,
+        markers=markers,
+        traces=traces,
+        warnings=tuple(warnings),
+    )
