@@ -68,6 +68,8 @@ def describe(spec: SignalSpec | AudioSpec) -> str:
         parts.append(f"{m.sideband.upper()}, {_audio_text(m.audio)}")
         if m.opposite_sideband_dbc is not None:
             parts.append(f"opposite sideband {m.opposite_sideband_dbc:g} dBc")
+        elif m.gain_error_db or m.phase_error_deg:
+            parts.append(f"phasing error {m.gain_error_db:g} dB / {m.phase_error_deg:g} deg")
         if m.carrier_leak_dbc is not None:
             parts.append(f"carrier leak {m.carrier_leak_dbc:g} dBc")
     parts.append(f"level {spec.level_dbfs:g} dBFS")
@@ -83,6 +85,15 @@ def describe(spec: SignalSpec | AudioSpec) -> str:
         parts.append(f"cubic k {spec.amplifier.cubic_k_per_fs2:g}")
     if spec.noise_dbfs_per_hz is not None:
         parts.append(f"noise {spec.noise_dbfs_per_hz:g} dBFS/Hz")
+    rx = spec.receiver
+    if rx.image_dbc is not None:
+        parts.append(f"receiver image {rx.image_dbc:g} dBc")
+    elif rx.iq_gain_imbalance_db or rx.iq_phase_error_deg:
+        parts.append(f"receiver I/Q error {rx.iq_gain_imbalance_db:g} dB / {rx.iq_phase_error_deg:g} deg")
+    if rx.dc_offset_dbfs is not None:
+        parts.append(f"receiver DC {rx.dc_offset_dbfs:g} dBFS")
+    if rx.adc_bits is not None:
+        parts.append(f"{rx.adc_bits}-bit ADC")
     return f"synthesized {', '.join(parts)}; seed {spec.seed}"
 
 

@@ -232,20 +232,18 @@ def _db(x: float) -> float:
 
 
 def _band_model(spec: SignalSpec) -> tuple[list[tuple[float, float, float]], list[tuple[float, float]]]:
-    """Bands and lines (capture-centre frame) of a linear band-noise signal."""
+    """Bands and lines of a linear band-noise transmitter signal (capture-centre frame).
+
+    Receiver defects (image, DC) are not included: the truth describes the transmitter.
+    """
     mod = spec.modulation
     assert not isinstance(mod, Cw) and isinstance(mod.audio, BandNoise)
     lo, hi = mod.audio.low_hz, mod.audio.high_hz
     a, b, c = envelope_coefficients(spec)
     f0 = spec.frequency.carrier_offset_hz
-    k1, k2 = receiver_coefficients(spec.receiver)
     bands = [(f0 + lo, f0 + hi, abs(a) ** 2), (f0 - hi, f0 - lo, abs(b) ** 2)]
     lines = [(f0, abs(c) ** 2)]
-    bands_rx = [(l, h, p * abs(k1) ** 2) for l, h, p in bands] + [
-        (-h, -l, p * abs(k2) ** 2) for l, h, p in bands
-    ]
-    lines_rx = [(f, p * abs(k1) ** 2) for f, p in lines] + [(-f, p * abs(k2) ** 2) for f, p in lines]
-    return [x for x in bands_rx if x[2] > 0], [x for x in lines_rx if x[1] > 0]
+    return [x for x in bands if x[2] > 0], [x for x in lines if x[1] > 0]
 
 
 def truth(spec: SignalSpec) -> dict[str, float]:
@@ -260,6 +258,11 @@ def truth(spec: SignalSpec) -> dict[str, float]:
     ``image_dbc``, ``dc_offset_dbfs``. Figures without a closed form for this spec
     (e.g. IMD through a soft clipper) are left out. ``imd3_dbc`` is the stronger
     third-order product relative to the mean power of one output tone.
+
+    The figures describe the transmitted signal (after its amplifier, before noise); the
+    receiver's own defects are reported separately (``image_dbc``, ``dc_offset_dbfs``)
+    and not folded into e.g. the occupied bandwidth. The receiver model keeps the
+    signal's level (``K1 = 1``), so levels in dBFS hold in the file too.
     """
     out: dict[str, float] = {}
     mod = spec.modulation
