@@ -50,10 +50,13 @@ from ._result import Artefact, Measurement, failed
 from .artefacts import artefact_figures
 from .bandwidth import bandwidth_figures
 from .carrier import carrier_figures
+from .designator import designator_figures
+from .imd import two_tone_figures
 from .levels import level_figures
 from .locate import CoreContext, StreamStats, compute_layout, locate_signal
 from .modulation import modulation_figures
 from .sidebands import sideband_figures
+from .spurs import spur_figures
 
 __all__ = [
     "PROVIDERS",
@@ -89,6 +92,9 @@ PROVIDERS: list[FigureProvider] = [
     bandwidth_figures,
     artefact_figures,
     level_figures,
+    two_tone_figures,  # imd3/5/7_dbc, imd3/5/7_db_pep, tone_balance_db in --mode two-tone
+    spur_figures,  # worst_spur_dbc with the spur table (SM.1539 domains)
+    designator_figures,  # necessary_bandwidth_hz with the emission designator
 ]
 
 #: Report order of the stable measurement keys (DESIGN.md section 4); others follow.
