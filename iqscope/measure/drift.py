@@ -68,6 +68,8 @@ __all__ = [
     "track_frequency",
     "drift_measurements",
     "analyse_drift",
+    "TrackingSetup",
+    "prepare_tracking",
     "drift_figures",
     "resolve_frequency",
     "DEFAULT_WINDOW_S",
@@ -1190,6 +1192,70 @@ def watch_status(tracker: LineTracker, nominal_offset_hz: float | None = None) -
 # --------------------------------------------------------------------------------------
 # Whole job (CLI) and pipeline provider
 # --------------------------------------------------------------------------------------
+@dataclass(frozen=True)
+class TrackingSetup:
+    """Everything decided before tracking starts (from a survey spectrum and the options)."""
+
+    plan: LinePlan
+    """What to follow, with SNR and neighbour figures filled in."""
+    nominal_offset_hz: float | None
+    """Where the carrier should be (Hz offset), or None (capture centre)."""
+    stable_search_hz: float | None
+    """Where the stable reference line was found in the survey (Hz offset), or None."""
+    stable_nominal_hz: float | None
+    """The stable line's stated frequency, Hz offset (``--reference``), or None."""
+    stable_is_absolute: bool
+    """``--reference`` was an absolute RF frequency."""
+
+
+def prepare_tracking(
+    recording: Recording,
+    spectrum: Spectrum,
+    noise_psd: float,
+    *,
+    mode: str | None = None,
+    carrier_hz: float | None = None,
+    tone_hz: float | None = None,
+    line_hz: float | None = None,
+    reference_hz: float | None = None,
+    nominal_hz: float | None = None,
+) -> TrackingSetup:
+    """Resolve the user's frequencies and choose the line(s) to follow.
+
+    ``carrier_hz`` (where the carrier is: helps choose the line), ``line_hz`` (follow this
+    line), ``reference_hz`` (a stable line: reference mode) and ``nominal_hz`` (where the
+    carrier should be: ``frequency_offset_hz`` is measured from it; default ``carrier_hz``)
+    are offsets when within +/- fs/2, else absolute RF frequencies (need the capture centre).
+    """
+    fs = recording.sample_rate_hz
+    cf = recording.center_frequency_hz
+    carrier = resolve_frequency(carrier_hz, fs, cf, "--carrier")[0] if carrier_hz is not None else None
+    line = resolve_frequency(line_hz, fs, cf, "--line")[0] if line_hz is not None else None
+    nominal = resolve_frequency(nominal_hz, fs, cf, "--carrier")[0] if nominal_hz is not None else carrier
+    stable: float | None = None
+    stable_abs = False
+    if reference_hz is not None:
+        stable, stable_abs = resolve_frequency(reference_hz, fs, cf, "--reference")
+    plan = plan_lines(spectrum, noise_psd, mode=mode, carrier_offset_hz=carrier, tone_hz=tone_hz, line_hz=line)
+    plan = _with_survey(plan, spectrum, noise_psd)
+    stable_search: float | None = None
+    if stable is not None:
+        lines = find_lines(spectrum.freqs_hz, spectrum.psd, noise_psd, min_ratio_db=10.0, max_lines=24)
+        tol = max(4 * spectrum.bin_hz, 5.0)
+        near = _nearest(lines, stable, max(tol, 50.0))
+        if near is None:
+            raise MeasurementError(f"no stable reference line within 50 Hz of {stable:.1f} Hz", recording.path)
+        if any(abs(near.frequency_hz - f) <= tol for f in plan.lines_hz):
+            raise UsageError("--reference names the same line that is being followed")
+        stable_search = near.frequency_hz
+        plan = replace(
+            plan,
+            snr=min(plan.snr, near.power / (noise_psd * fs)),
+            separation_hz=min(plan.separation_hz, min(abs(near.frequency_hz - f) for f in plan.lines_hz)),
+        )
+    return TrackingSetup(plan, nominal, stable_search, stable, stable_abs)
+
+
 def analyse_drift(
     recording: Recording,
     *,
@@ -1208,50 +1274,26 @@ def analyse_drift(
 ) -> DriftResult:
     """Survey, plan, track and figure: what ``iqscope drift`` runs.
 
-    ``carrier_hz`` (where the carrier is: helps choose the line), ``line_hz`` (follow this
-    line), ``reference_hz`` (a stable line: reference mode) and ``nominal_hz`` (where the
-    carrier should be: ``frequency_offset_hz`` is measured from it; default ``carrier_hz``)
-    are offsets when within +/- fs/2, else absolute RF frequencies (need the capture centre).
+    Frequencies as in :func:`prepare_tracking`; ``spectrum`` is an averaged spectrum and
+    its noise floor PSD when one is at hand (else a survey is made).
     """
-    fs = recording.sample_rate_hz
-    cf = recording.center_frequency_hz
-    carrier = resolve_frequency(carrier_hz, fs, cf, "--carrier")[0] if carrier_hz is not None else None
-    line = resolve_frequency(line_hz, fs, cf, "--line")[0] if line_hz is not None else None
-    nominal = resolve_frequency(nominal_hz, fs, cf, "--carrier")[0] if nominal_hz is not None else carrier
     if block_s is not None and not (block_s > 0 and math.isfinite(block_s)):
         raise UsageError(f"--block {block_s!r} must be a positive number of seconds")
     if span_hz is not None and not (span_hz > 0 and math.isfinite(span_hz)):
         raise UsageError(f"--span {span_hz!r} must be a positive number of hertz")
-    stable: float | None = None
-    stable_abs = False
-    if reference_hz is not None:
-        stable, stable_abs = resolve_frequency(reference_hz, fs, cf, "--reference")
     spec, noise = spectrum if spectrum is not None else survey_spectrum(recording)
-    plan = plan_lines(spec, noise, mode=mode, carrier_offset_hz=carrier, tone_hz=tone_hz, line_hz=line)
-    if stable is not None:
-        lines = find_lines(spec.freqs_hz, spec.psd, noise, min_ratio_db=10.0, max_lines=24)
-        tol = max(4 * spec.bin_hz, 5.0)
-        near = _nearest(lines, stable, max(tol, 50.0))
-        if near is None:
-            raise MeasurementError(f"no stable reference line within 50 Hz of {stable:.1f} Hz", recording.path)
-        if any(abs(near.frequency_hz - f) <= tol for f in plan.lines_hz):
-            raise UsageError("--reference names the same line that is being followed")
-        stable_search = near.frequency_hz
-        p_st = near.power / (noise * fs)
-        plan = replace(plan, snr=min(plan.snr, p_st),
-                       separation_hz=min(plan.separation_hz,
-                                         min(abs(near.frequency_hz - f) for f in plan.lines_hz)))
-    else:
-        stable_search = None
+    setup = prepare_tracking(recording, spec, noise, mode=mode, carrier_hz=carrier_hz, tone_hz=tone_hz,
+                             line_hz=line_hz, reference_hz=reference_hz, nominal_hz=nominal_hz)
+    plan = setup.plan
     if block_s is None:
-        block_s = choose_block_s(plan.snr, fs, recording.duration_s)
+        block_s = choose_block_s(plan.snr, recording.sample_rate_hz, recording.duration_s)
     track = track_frequency(
         recording, plan, block_s=block_s, span_hz=span_hz, progress=progress,
-        stable_line_hz=stable_search, stable_is_absolute=stable_abs,
+        stable_line_hz=setup.stable_search_hz, stable_is_absolute=setup.stable_is_absolute,
     )
-    if stable is not None and stable_abs:
-        track = replace(track, stable_nominal_hz=stable)
-    result = drift_measurements(track, nominal_offset_hz=nominal, window_s=window_s,
+    if setup.stable_is_absolute:
+        track = replace(track, stable_nominal_hz=setup.stable_nominal_hz)
+    result = drift_measurements(track, nominal_offset_hz=setup.nominal_offset_hz, window_s=window_s,
                                 settle_band_hz=settle_band_hz)
     warns = list(result.warnings) + list(recording.warnings)
     if len({s.center_frequency_hz for s in recording.segments}) > 1:
