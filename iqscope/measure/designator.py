@@ -379,7 +379,7 @@ def designator_figures(ctx: AnalysisContext) -> FigureSet:
     a well-behaved transmitter (J3E: Bn = M - lowest audio frequency, which is the
     occupied sideband; A3E: 2M; H3E: M from carrier to top). The designator is in
     ``details["designator"]``. Not produced for the two-tone test signal, which is a
-    test, not an emission class.
+    test, not an emission class; null (with a note) when the emission is a single line.
     """
     out = FigureSet()
     mode = ctx.signal.mode
@@ -392,6 +392,16 @@ def designator_figures(ctx: AnalysisContext) -> FigureSet:
         out.measurements["necessary_bandwidth_hz"] = failed("Hz", "no emission above the noise floor")
         return out
     bn = hi - lo
+    lobe = 2.0 * lobe_half_width_bins(spec) * spec.bin_hz
+    if bn <= 2.0 * lobe:
+        out.measurements["necessary_bandwidth_hz"] = Measurement(
+            value=None,
+            unit="Hz",
+            note="the emission is a single line (an unmodulated carrier or a steady test tone): its occupied "
+            "bandwidth does not estimate the necessary bandwidth; record it modulated (speech, keying)",
+            details={"lower_hz": lo, "upper_hz": hi},
+        )
+        return out
     carrier: CarrierLevel | None = None
     basis = "99 % occupied bandwidth (RR No. 1.153) taken as the necessary bandwidth"
     if mode in ("usb", "lsb"):

@@ -50,6 +50,8 @@ __all__ = [
     "SpurSearch",
     "OOB_BOUNDARY_FACTOR",
     "detection_threshold_factor",
+    "nominal_band",
+    "NOMINAL_BAND_HZ",
     "find_spurs",
     "spur_figures",
 ]
@@ -278,12 +280,44 @@ def _calibration_offset(ctx: AnalysisContext) -> float | None:
     return None
 
 
+#: Smallest necessary band per mode, Hz offsets from the carrier: the worked examples of
+#: Rec. ITU-R SM.1138 Annex 1 (100HA1A Morse at 25 wpm, 6K00A3E DSB telephony with
+#: M = 3000 Hz, 2K70J3E SSB from 300 to 3000 Hz). A test tone or an unmodulated carrier
+#: occupies far less than its emission class needs, and the carrier leak or opposite
+#: sideband of an SSB transmitter are not spurs: they lie inside this band or its OoB domain.
+NOMINAL_BAND_HZ: Final = {
+    "cw": (-50.0, 50.0),
+    "am": (-3000.0, 3000.0),
+    "dsb": (-3000.0, 3000.0),
+    "usb": (300.0, 3000.0),
+    "lsb": (-3000.0, -300.0),
+}
+
+
+def nominal_band(mode: str, carrier_offset_hz: float | None, lo: float, hi: float) -> tuple[float, float] | None:
+    """The mode's smallest necessary band (:data:`NOMINAL_BAND_HZ`) placed at the carrier, Hz offsets.
+
+    Two-tone tests are SSB: the band lies on the tones' side of the carrier. Without a
+    carrier location, a two-tone band of 2700 Hz is centred on the measured emission.
+    """
+    if mode == "two-tone":
+        if carrier_offset_hz is None:
+            c = 0.5 * (lo + hi)
+            return c - 1350.0, c + 1350.0
+        mode = "usb" if 0.5 * (lo + hi) >= carrier_offset_hz else "lsb"
+    band = NOMINAL_BAND_HZ.get(mode)
+    if band is None or carrier_offset_hz is None:
+        return None
+    return carrier_offset_hz + band[0], carrier_offset_hz + band[1]
+
+
 def spur_figures(ctx: AnalysisContext) -> FigureSet:
     """Figure provider: ``worst_spur_dbc`` with the spur table in its details.
 
-    The necessary band is the measured 99 % occupied band (or
-    ``request.options["spurs"]["necessary_bandwidth_hz"]`` centred on it). Receiver
-    artefacts are listed in the table with their flag and added as artefacts.
+    The necessary band is the measured 99 % occupied band of the emission, widened to
+    at least the mode's nominal band (:func:`nominal_band`), or
+    ``request.options["spurs"]["necessary_bandwidth_hz"]`` centred on the measured band.
+    Receiver artefacts are listed in the table with their flag and added as artefacts.
     """
     out = FigureSet()
     spec = ctx.spectrum
@@ -293,9 +327,16 @@ def spur_figures(ctx: AnalysisContext) -> FigureSet:
         out.measurements["worst_spur_dbc"] = failed("dBc", "no emission above the noise floor")
         return out
     given = _options(ctx).get("necessary_bandwidth_hz")
+    basis = "measured 99 % occupied band"
     if given is not None:
         c = 0.5 * (lo + hi)
         lo, hi = c - float(given) / 2, c + float(given) / 2
+        basis = "given necessary bandwidth"
+    else:
+        nom = nominal_band(ctx.signal.mode, ctx.signal.carrier_offset_hz, lo, hi)
+        if nom is not None and (nom[0] < lo or nom[1] > hi):
+            lo, hi = min(lo, nom[0]), max(hi, nom[1])
+            basis = "measured 99 % occupied band widened to the mode's nominal band (SM.1138 examples)"
     # Never narrower than the line integration band: a CW carrier's 99 % band is ~1 bin.
     h = line_half_width_hz(spec)
     if hi - lo < 2 * h:
@@ -323,6 +364,7 @@ def spur_figures(ctx: AnalysisContext) -> FigureSet:
         "searched_spurious_hz": res.searched_spurious_hz,
         "detection_bound_dbc": res.bound_dbc,
         "reference": "mean power of the fundamental emission",
+        "necessary_band_basis": basis,
     }
     domain_txt = (
         f"spurious domain beyond +/-{res.boundary_hz:.0f} Hz of the emission centre "
