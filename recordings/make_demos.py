@@ -64,8 +64,9 @@ KIT_PHASE_ERROR_DEG = 1.2
 
 def demo_specs() -> dict[str, tuple[SignalSpec, dict[str, Any]]]:
     """The demo recordings: name -> (spec, writer options)."""
-    rx_dc_image = Receiver(image_dbc=-42.0, image_phase_deg=20.0, dc_offset_dbfs=-58.0,
-                           dc_phase_deg=-30.0, adc_bits=16)  # fmt: skip
+    # the SSB captures: receiver DC only (an image would land in the mirror band and make
+    # the opposite-sideband figure partly the receiver's, see the AM file for an image)
+    rx_dc = Receiver(dc_offset_dbfs=-58.0, dc_phase_deg=-30.0, adc_bits=16)
     specs: dict[str, tuple[SignalSpec, dict[str, Any]]] = {}
 
     specs["am80m_bench"] = (
@@ -94,7 +95,7 @@ def demo_specs() -> dict[str, tuple[SignalSpec, dict[str, Any]]]:
             level_dbfs=-16.0,
             frequency=FrequencyPlan(carrier_offset_hz=1000.0),
             noise_dbfs_per_hz=-122.0,
-            receiver=rx_dc_image,
+            receiver=rx_dc,
             center_frequency_hz=14_200_000.0,
             seed=20,
         ),
@@ -114,7 +115,7 @@ def demo_specs() -> dict[str, tuple[SignalSpec, dict[str, Any]]]:
             frequency=FrequencyPlan(carrier_offset_hz=1000.0),
             amplifier=Amplifier(cubic_k_per_fs2=cubic_k_for_imd3(-32.0, tone_amplitude)),
             noise_dbfs_per_hz=-122.0,
-            receiver=rx_dc_image,
+            receiver=rx_dc,
             center_frequency_hz=14_200_000.0,
             seed=21,
         ),

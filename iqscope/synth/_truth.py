@@ -257,7 +257,10 @@ def truth(spec: SignalSpec) -> dict[str, float]:
     ``carrier_dbfs``, ``sideband_power_dbfs``, ``tone_dbfs``, ``pep_dbfs``,
     ``image_dbc``, ``dc_offset_dbfs``. Figures without a closed form for this spec
     (e.g. IMD through a soft clipper) are left out. ``imd3_dbc`` is the stronger
-    third-order product relative to the mean power of one output tone.
+    third-order product relative to the mean power of one output tone. Through a
+    nonlinear amplifier the carrier and sideband figures are taken from the output lines:
+    sideband power is the power of the audio tones' own lines (products excluded), the
+    opposite sideband the power of their mirror lines.
 
     The figures describe the transmitted signal (after its amplifier, before noise); the
     receiver's own defects are reported separately (``image_dbc``, ``dc_offset_dbfs``)
@@ -349,14 +352,37 @@ def truth(spec: SignalSpec) -> dict[str, float]:
         peak = envelope_peak(env)
         if peak is not None:
             out["pep_dbfs"] = _db(peak**2)
+    by_f = {round(ln.frequency_hz, _FREQ_DIGITS) + 0.0: ln.power for ln in env}
+
+    def power_at(f: float) -> float:
+        return by_f.get(round(f, _FREQ_DIGITS) + 0.0, 0.0)
+
+    tones = audio_lines(audio)[0]
+    upper = sum(power_at(f) for f in tones)  # the modulation's own lines, not products
+    lower = sum(power_at(-f) for f in tones)
+    carrier = power_at(0.0)
+    if not linear_amp:
+        # the amplifier moves every line: take the figures from the output lines
+        if isinstance(mod, Am):
+            out["modulation_index"] = math.sqrt(2.0 * (upper + lower) / carrier)
+            out["sideband_balance_db"] = _db(upper / lower)
+        elif isinstance(mod, Dsb):
+            out["sideband_power_dbfs"] = _db(upper + lower)
+            out["sideband_balance_db"] = _db(upper / lower)
+            if carrier > 0:
+                out["carrier_suppression_db"] = _db((upper + lower) / carrier)
+                out["carrier_dbfs"] = _db(carrier)
+        elif isinstance(mod, Ssb):
+            wanted, mirror = (upper, lower) if mod.sideband == "usb" else (lower, upper)
+            out["sideband_power_dbfs"] = _db(wanted)
+            if mirror > 0:
+                out["opposite_sideband_suppression_db"] = _db(wanted / mirror)
+            if carrier > 0:
+                out["carrier_suppression_db"] = _db(wanted / carrier)
+                out["carrier_dbfs"] = _db(carrier)
     if isinstance(audio, TwoTone) and isinstance(mod, Ssb):
         sign = 1.0 if mod.sideband == "usb" else -1.0
         f1, f2 = sign * audio.f1_hz, sign * audio.f2_hz
-        by_f = {round(ln.frequency_hz, _FREQ_DIGITS) + 0.0: ln.power for ln in env}
-
-        def power_at(f: float) -> float:
-            return by_f.get(round(f, _FREQ_DIGITS) + 0.0, 0.0)
-
         tone = 0.5 * (power_at(f1) + power_at(f2))
         out["tone_dbfs"] = _db(tone)
         for order, name in ((3, "imd3"), (5, "imd5"), (7, "imd7")):
