@@ -55,6 +55,7 @@ from .imd import two_tone_figures
 from .levels import level_figures
 from .locate import CoreContext, StreamStats, compute_layout, locate_signal
 from .modulation import modulation_figures
+from .power import power_figures
 from .sidebands import sideband_figures
 from .spurs import spur_figures
 
@@ -92,6 +93,7 @@ PROVIDERS: list[FigureProvider] = [
     bandwidth_figures,
     artefact_figures,
     level_figures,
+    power_figures,  # mean power and PEP in dBm / W when options["calibration"] is given
     two_tone_figures,  # imd3/5/7_dbc, imd3/5/7_db_pep, tone_balance_db in --mode two-tone
     spur_figures,  # worst_spur_dbc with the spur table (SM.1539 domains)
     designator_figures,  # necessary_bandwidth_hz with the emission designator
