@@ -264,7 +264,9 @@ def test_calibrated_analysis_within_0p1_db(rng: np.random.Generator) -> None:
         pytest.skip("power_figures is not registered in the pipeline yet")
     cal = make_calibration(reference(rng), -50.0, 40.0)
     n = 96_000
-    x = tone(n, 1_500.0, -16.0) + tone(n, 2_500.0, -16.0, phase=1.1) + noise(rng, n, -90.0)
+    # noise -110 dBFS/Hz (-63 dBFS in 48 kHz): it lifts the largest |x|^2 by at most
+    # 20 log10(1 + sqrt(ln N) 10^(-53/20)) = 0.07 dB, inside the 0.1 dB criterion
+    x = tone(n, 1_500.0, -16.0) + tone(n, 2_500.0, -16.0, phase=1.1) + noise(rng, n, -110.0)
     rec = ArrayRecording(x, FS, FC)
     analysis = pipeline.analyse(rec, AnalysisRequest(mode="two-tone",
                                                      options={"calibration": cal}))
@@ -273,6 +275,21 @@ def test_calibrated_analysis_within_0p1_db(rng: np.random.Generator) -> None:
     assert m["mean_power_dbm"].value == pytest.approx(one_tone_dbm + 10 * math.log10(2), abs=0.1)
     assert m["pep_dbm"].value == pytest.approx(one_tone_dbm + 10 * math.log10(4), abs=0.1)
     assert m["pep_w"].value == pytest.approx(4 * watts_from_dbm(one_tone_dbm), rel=0.024)
+    assert m["mean_power_w"].value == pytest.approx(2 * watts_from_dbm(one_tone_dbm), rel=0.024)
+
+
+def test_pep_noise_lift_is_within_stated_uncertainty(rng: np.random.Generator) -> None:
+    """With noise 30 dB below the tones the largest |x|^2 is lifted above the true PEP
+    (4 x one tone, Krauss et al. 1980 p. 509); the stated 1-sigma must cover the lift."""
+    n = 96_000
+    x = tone(n, 1_500.0, -16.0) + tone(n, 2_500.0, -16.0, phase=1.1) + noise(rng, n, -90.0)
+    p = np.abs(x) ** 2
+    ctx = _context(x, {"calibration": _cal(10.0)}, noise_psd=10 ** (-90 / 10))
+    pep = power_figures(ctx).measurements["pep_dbm"]
+    truth = -16.0 + 10.0 + 10 * math.log10(4)
+    assert pep.value == pytest.approx(10 * math.log10(p.max()) + 10.0)
+    assert pep.value > truth  # the lift is upward
+    assert pep.value - truth <= pep.uncertainty
 
 
 # ----------------------------------------------------------------------------------------

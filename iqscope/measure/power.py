@@ -611,8 +611,9 @@ def power_figures(ctx: AnalysisContext) -> FigureSet:
     Uncertainty (1 sigma): the calibration's, combined in quadrature with, for the mean
     power, the noise-floor subtraction, ``(10/ln 10) Pn / (P sqrt(M))`` with ``Pn`` the
     noise power of the whole band and ``M`` the spectrum's averages (conservative); for
-    PEP, the shift the noise's rms amplitude can give the envelope peak,
-    ``20 log10(1 + sqrt(Pn / PEP))``.
+    PEP, the lift the noise can give the envelope's largest sample,
+    ``20 log10(1 + sqrt(ln N) sqrt(Pn / PEP))`` over N samples (an upward bias counted as
+    1 sigma: conservative).
 
     References
     ----------
@@ -651,7 +652,12 @@ def power_figures(ctx: AnalysisContext) -> FigureSet:
     pep = ctx.peak_power
     if pep is not None and math.isfinite(pep) and pep > 0:
         pep_dbfs = _db(pep)
-        noise_db = 20.0 * math.log10(1.0 + math.sqrt(noise_total / pep))
+        # Noise lifts the largest |x|^2: the in-phase noise component (rms sqrt(Pn/2))
+        # reaches about sqrt(2 ln N) of its rms somewhere in N samples (Gaussian extreme
+        # value, from memory), i.e. sqrt(ln N) x sqrt(Pn) in amplitude.
+        n_samp = max(2, ctx.recording.n_samples)
+        lift = math.sqrt(math.log(n_samp)) * math.sqrt(noise_total / pep)
+        noise_db = 20.0 * math.log10(1.0 + lift)
         sigma = math.hypot(cal.uncertainty_db, noise_db)
         pep_dbm = cal.dbm(pep_dbfs)
         note = (
