@@ -65,10 +65,19 @@ def traces() -> dict[str, Trace]:
     times = np.linspace(0, 10, 40)
     freqs = np.linspace(-FS / 2, FS / 2, 256, endpoint=False)
     img = -120 + 80 * np.exp(-(((freqs[None, :] - CARRIER) / 800.0) ** 2)) + 0 * times[:, None]
+    # Layouts of iqscope.measure.pipeline: envelope in dBFS per block with the peak in
+    # extra; spectrogram with x = frequencies and one row per time in extra["rows"].
+    mean_db = 10 * np.log10(np.maximum(env**2, 1e-6))
     return {
-        "envelope": Trace(x=t, y=env, x_label="time (s)", y_label="envelope (FS)"),
+        "envelope": Trace(
+            x=t, y=mean_db, x_label="Time (s)", y_label="Mean power (dBFS)", extra={"peak_dbfs": mean_db + 3.0}
+        ),
         "spectrogram": Trace(
-            x=times, y=img, x_label="time (s)", y_label="frequency offset (Hz)", extra={"freqs_hz": freqs}
+            x=freqs,
+            y=img,
+            x_label="Frequency offset (Hz)",
+            y_label="Time (s)",
+            extra={"rows": times, "z_label": "PSD (dBFS/Hz)"},
         ),
     }
 

@@ -136,6 +136,10 @@ def spectrum_figure(result: GradeResult) -> Figure:
         for k in ("bw26_lower", "bw26_upper"):
             ax.axvline(xm(m[k]), color=_EDGE_COLOR, linestyle="--", linewidth=0.8)
         ax.plot([], [], color=_EDGE_COLOR, linestyle="--", linewidth=0.8, label="-26 dB edges")
+    if "band_lower" in m and "band_upper" in m:
+        for k in ("band_lower", "band_upper"):
+            ax.axvline(xm(m[k]), color="#909497", linewidth=0.7, linestyle=(0, (1, 3)))
+        ax.plot([], [], color="#909497", linewidth=0.7, linestyle=(0, (1, 3)), label="emission band")
     if a.signal.carrier_offset_hz is not None:
         ax.axvline(0.0, color="#7d3c98", linewidth=0.8, linestyle=":", label="carrier")
     _draw_point_markers(ax, a, centre, scale, sel, level)
@@ -148,7 +152,9 @@ def spectrum_figure(result: GradeResult) -> Figure:
     return fig
 
 
-_SKIP_POINT: Final = frozenset({"carrier", "obw_lower", "obw_upper", "bw26_lower", "bw26_upper"})
+_SKIP_POINT: Final = frozenset(
+    {"carrier", "obw_lower", "obw_upper", "bw26_lower", "bw26_upper", "band_lower", "band_upper"}
+)
 
 
 def _draw_point_markers(
@@ -213,11 +219,16 @@ def _hz_text(hz: float) -> str:
 
 
 def _spectrogram_figure(a: Analysis, tr: Trace) -> Figure:
-    """Image of level over time and frequency; ``y`` rows are times (``x``) and columns
-    frequencies (``extra['freqs_hz']``), in dBFS/Hz (``extra['scale'] == 'linear'``: FS²/Hz)."""
+    """Image of level over time and frequency, in dBFS/Hz (``extra['scale'] == 'linear'``:
+    FS²/Hz). The pipeline's layout: ``x`` frequencies (Hz offsets), ``y`` one row per time
+    in ``extra['rows']`` (s); also accepted: ``x`` times and ``extra['freqs_hz']``."""
     img = np.asarray(tr.y, dtype=float)
-    times = np.asarray(tr.x, dtype=float)
-    freqs = np.asarray(tr.extra.get("freqs_hz", np.arange(img.shape[1])), dtype=float)
+    if "rows" in tr.extra:
+        times = np.asarray(tr.extra["rows"], dtype=float)
+        freqs = np.asarray(tr.x, dtype=float)
+    else:
+        times = np.asarray(tr.x, dtype=float)
+        freqs = np.asarray(tr.extra.get("freqs_hz", np.arange(img.shape[1])), dtype=float)
     if img.shape[0] != times.size and img.shape[1] == times.size:
         img = img.T
     if tr.extra.get("scale") == "linear":
@@ -240,9 +251,9 @@ def _spectrogram_figure(a: Analysis, tr: Trace) -> Figure:
         cmap="viridis",
         interpolation="nearest",
     )
-    fig.colorbar(mesh, ax=ax, label=str(tr.extra.get("unit", "dBFS/Hz")))
+    fig.colorbar(mesh, ax=ax, label=str(tr.extra.get("z_label", tr.extra.get("unit", "dBFS/Hz"))))
     ax.set_xlabel(f"offset from capture centre ({unit})")
-    ax.set_ylabel(tr.x_label or "time (s)")
+    ax.set_ylabel("time (s)")
     ax.set_title(_title(a, "Spectrogram"), fontsize=10)
     return fig
 
@@ -252,7 +263,13 @@ def _line_figure(a: Analysis, tr: Trace, what: str, band: Any = None) -> Figure:
     ax = fig.add_subplot()
     x = np.asarray(tr.x, dtype=float)
     y = np.asarray(tr.y, dtype=float)
-    ax.plot(x, y, color="#1b2631", linewidth=0.9)
+    peak = tr.extra.get("peak_dbfs")
+    if peak is not None and np.shape(peak) == y.shape:
+        ax.plot(x, np.asarray(peak, dtype=float), color=_MASK_COLOR, linewidth=0.8, label="peak")
+        ax.plot(x, y, color="#1b2631", linewidth=0.9, label="mean")
+        ax.legend(loc="best", fontsize=7)
+    else:
+        ax.plot(x, y, color="#1b2631", linewidth=0.9)
     if band is not None and np.shape(band) == y.shape:
         s = np.asarray(band, dtype=float)
         ax.fill_between(x, y - s, y + s, color=_EDGE_COLOR, alpha=0.2, linewidth=0, label="1-sigma")
