@@ -25,6 +25,9 @@ from ._recording import Annotation, Recording, Segment
 
 __all__ = ["ByteRun", "FileRecording", "open_readonly", "file_size"]
 
+#: Largest single positioned read (bytes); longer reads are split.
+_MAX_READ_BYTES = 1 << 24
+
 
 @dataclass(frozen=True)
 class ByteRun:
@@ -145,30 +148,33 @@ class FileRecording(Recording):
         stop = start + count
         pieces: list[npt.NDArray[np.complex64]] = []
         fd = self._descriptor()
+        per_read = max(1, _MAX_READ_BYTES // frame)  # bounded memory with many channels
         for run in self._runs:
             lo = max(start, run.first_sample)
             hi = min(stop, run.first_sample + run.n_samples)
-            if lo >= hi:
-                continue
-            nbytes = (hi - lo) * frame
-            offset = run.byte_offset + (lo - run.first_sample) * frame
-            try:
-                raw = _pread(fd, nbytes, offset)
-            except OSError as exc:
-                raise FormatError(f"read failed: {exc.strerror or exc}", self.data_path) from exc
-            if len(raw) != nbytes:
-                raise FormatError(
-                    "the file ended early (was it truncated while being read?)", self.data_path
-                )
-            if self._n_channels == 1:
-                pieces.append(fmt.decode(raw))
-            else:
-                frames = np.frombuffer(raw, np.uint8).reshape(-1, frame)
-                c0 = self._channel * fmt.sample_bytes
-                pieces.append(fmt.decode(np.ascontiguousarray(frames[:, c0 : c0 + fmt.sample_bytes]).ravel()))
+            while lo < hi:
+                n = min(hi - lo, per_read)
+                pieces.append(self._read_frames(fd, run.byte_offset + (lo - run.first_sample) * frame, n))
+                lo += n
         if len(pieces) == 1:
             return pieces[0]
         return np.concatenate(pieces) if pieces else np.zeros(0, np.complex64)
+
+    def _read_frames(self, fd: int, offset: int, n: int) -> npt.NDArray[np.complex64]:
+        fmt = self.sample_format
+        frame = fmt.sample_bytes * self._n_channels
+        nbytes = n * frame
+        try:
+            raw = _pread(fd, nbytes, offset)
+        except OSError as exc:
+            raise FormatError(f"read failed: {exc.strerror or exc}", self.data_path) from exc
+        if len(raw) != nbytes:
+            raise FormatError("the file ended early (was it truncated while being read?)", self.data_path)
+        if self._n_channels == 1:
+            return fmt.decode(raw)
+        frames = np.frombuffer(raw, np.uint8).reshape(-1, frame)
+        c0 = self._channel * fmt.sample_bytes
+        return fmt.decode(np.ascontiguousarray(frames[:, c0 : c0 + fmt.sample_bytes]).ravel())
 
     def close(self) -> None:
         if self._finalizer is not None:
