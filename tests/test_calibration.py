@@ -323,6 +323,36 @@ class TestCalibrateCommand:
         assert main(argv + ["--force", "--json"]) == 0
         assert json.loads(capsys.readouterr().out)["schema"] == CALIBRATION_SCHEMA
 
+    def test_calibrate_then_grade_reports_dbm_and_watts(
+        self, rng: np.random.Generator, tmp_path: Path, capsys: pytest.CaptureFixture[str]
+    ) -> None:
+        """Issue 7 acceptance through the commands: the calibrated grade's mean power and
+        PEP agree with the synthesized truth within 0.1 dB (two equal tones of -16 dBFS,
+        offset +10 dB: each tone -6 dBm, mean 2x, PEP 4x; Krauss et al. 1980 p. 509)."""
+        pytest.importorskip("iqscope.measure.pipeline", reason="pipeline not built yet")
+        from iqscope.cli import main
+        from iqscope.io import write_sigmf
+
+        ref = self._write_reference(rng, tmp_path)
+        cal = tmp_path / "cal.json"
+        assert main(["calibrate", str(ref), "--level-dbm", "-50", "--attenuation-db", "40",
+                     "-o", str(cal)]) == 0
+        n = 96_000
+        x = tone(n, 1_500.0, -16.0) + tone(n, 2_500.0, -16.0, phase=1.1) + noise(rng, n, -110.0)
+        tx = write_sigmf(tmp_path / "tx", x.astype(np.complex64), FS, center_frequency_hz=FC)
+        capsys.readouterr()
+        status = main(["grade", str(tx), "--mode", "two-tone", "--calibration", str(cal),
+                       "--json"])
+        out = capsys.readouterr().out
+        assert status in (0, 1, 2)
+        m = json.loads(out)["measurements"]
+        tone_w = watts_from_dbm(-6.0)
+        assert m["mean_power_dbm"]["value"] == pytest.approx(-6.0 + 10 * math.log10(2), abs=0.1)
+        assert m["pep_dbm"]["value"] == pytest.approx(-6.0 + 10 * math.log10(4), abs=0.1)
+        assert m["mean_power_w"]["value"] == pytest.approx(2 * tone_w, rel=0.024)
+        assert m["pep_w"]["value"] == pytest.approx(4 * tone_w, rel=0.024)
+        assert m["pep_w"]["details"]["milliwatts"] == pytest.approx(4e3 * tone_w, rel=0.024)
+
     def test_bad_options(self, rng: np.random.Generator, tmp_path: Path) -> None:
         from iqscope.cli import main
 
