@@ -52,6 +52,7 @@ __all__ = [
     "level_sigma_db",
     "find_tone_pair",
     "measure_two_tone",
+    "opposite_sideband_of_tones",
     "two_tone_figures",
 ]
 
@@ -354,6 +355,10 @@ def two_tone_figures(ctx: AnalysisContext) -> FigureSet:
         details={"f1_hz": t.f1_hz, "f2_hz": t.f2_hz, "spacing_hz": t.spacing_hz},
     )
 
+    osb = opposite_sideband_of_tones(ctx.spectrum, ctx.noise_floor_psd, res, ctx.signal.carrier_offset_hz)
+    if osb is not None:
+        out.measurements["opposite_sideband_suppression_db"] = osb
+
     ref_sigma_db = 0.5 * bal_sigma  # mean of two tone levels
     pep_env = res.pep_envelope
     pep_tones = res.pep_tones
@@ -438,6 +443,59 @@ def two_tone_figures(ctx: AnalysisContext) -> FigureSet:
                     )
                 )
     return out
+
+
+def opposite_sideband_of_tones(
+    spectrum: Spectrum, noise_psd: float, res: TwoToneResult, carrier_offset_hz: float | None
+) -> Measurement | None:
+    """Opposite-sideband suppression of a two-tone SSB test: tones over their mirror images.
+
+    ``10 log10((P1 + P2) / (P1' + P2'))`` with ``Pi'`` the line power at ``2 f0 - fi``,
+    the mirror of tone ``i`` about the carrier ``f0`` (DESIGN.md section 3 definition,
+    applied to lines so that intermodulation products in the mirror band do not count).
+    None when the carrier is unknown or the tones lie on both sides of it. A mirror not
+    detectable above the noise gives a lower bound.
+    """
+    if carrier_offset_hz is None:
+        return None
+    t = res.tones
+    f0 = carrier_offset_hz
+    if (t.f1_hz - f0) * (t.f2_hz - f0) <= 0:
+        return None
+    nyq = spectrum.sample_rate_hz / 2.0
+    mirrors = [2.0 * f0 - t.f1_hz, 2.0 * f0 - t.f2_hz]
+    if any(abs(m) > nyq - line_half_width_hz(spectrum) for m in mirrors):
+        return failed("dB", "the mirror images of the tones lie outside the recorded band")
+    lines = [line_power(spectrum, m, noise_psd, search_bins=1) for m in mirrors]
+    wanted = t.p1.power + t.p2.power
+    mirror = sum(lp.level for lp in lines)
+    if not (wanted > 0 and mirror > 0):
+        return failed("dB", "no tone or mirror power to compare")
+    limited = not all(lp.detected for lp in lines)
+    value = 10.0 * math.log10(wanted / mirror)
+    sigma = None
+    if not limited:
+        sigma = math.hypot(
+            10.0 * math.log10(1.0 + math.hypot(lines[0].sigma, lines[1].sigma) / mirror), SYSTEMATIC_DB
+        )
+    side = "upper" if t.f1_hz > f0 else "lower"
+    collide = [
+        m for m in mirrors for p in res.products if abs(p.line.frequency_hz - m) <= 2 * line_half_width_hz(spectrum)
+    ]
+    note = f"two tones ({side} sideband) over their mirror images about the carrier at {f0:.1f} Hz"
+    if limited:
+        note += "; a mirror image is not above the noise: lower bound"
+    if collide:
+        note += "; an intermodulation product falls on a mirror image: choose another tone pair"
+    return Measurement(
+        value=value,
+        unit="dB",
+        uncertainty=sigma,
+        limited_by_noise=limited,
+        bound="lower" if limited else None,
+        note=note,
+        details={"mirror_hz": mirrors, "mirror_detected": [lp.detected for lp in lines]},
+    )
 
 
 def _db(p: float) -> float:
