@@ -227,3 +227,19 @@ def test_multi_gb_file_keeps_memory_flat(tmp_path: Path) -> None:
     assert data["n_samples"] == size // 4
     max_rss_mib = int(proc.stderr.strip().splitlines()[-1]) / 1024
     assert max_rss_mib < 400, max_rss_mib
+
+
+def test_progress_bar_only_when_enabled() -> None:
+    """Disabled (short file, stderr not a terminal): nothing printed. Enabled on a terminal
+    console: rich draws the bar (transient, so it is cleared at the end)."""
+    from iqscope.report._inspect import progress_bar
+
+    quiet = io.StringIO()
+    with progress_bar(100, Console(file=quiet), enabled=False) as advance:
+        advance(100)
+    assert quiet.getvalue() == ""
+    loud = io.StringIO()
+    with progress_bar(100, Console(file=loud, force_terminal=True, width=60), enabled=True, label="x.wav") as advance:
+        advance(50)
+        advance(50)
+    assert "x.wav" in loud.getvalue()
