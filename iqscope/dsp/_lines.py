@@ -320,7 +320,7 @@ def band_power(
         s = np.maximum(vals - floor, 0.0)
         rho = bin_correlation(spectrum.window, _nfft(spectrum), 16)
         kern = np.concatenate((rho[:0:-1], rho))
-        conv = np.convolve(s, kern, mode="same")
+        conv = np.convolve(s, kern)[rho.size - 1 : rho.size - 1 + s.size]
         var += float(np.dot(s, conv)) * df * df / k
     sigma = math.sqrt(max(var, 0.0))
     noise_sigma = math.sqrt(max(noise_var, 0.0))

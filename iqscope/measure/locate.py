@@ -66,7 +66,12 @@ __all__ = [
 MODES: Final = ("auto", "cw", "am", "dsb", "usb", "lsb", "two-tone")
 
 #: Fraction of the emission power in the strongest line above which it is a carrier.
-_CARRIER_FRACTION: Final = 0.5
+_CARRIER_FRACTION: Final = 0.55
+#: Lines at most this far from the carrier (or the strongest line), Hz, and within
+#: ``_LINE_SEED_DB`` of the strongest, belong to the emission (modulating audio reaches
+#: 10 kHz at most in the services served; common practice).
+_LINE_SEED_HZ: Final = 10_000.0
+_LINE_SEED_DB: Final = -40.0
 #: Symmetry score above which a carrier-less emission is DSB.
 _SYMMETRY_DSB: Final = 0.5
 #: Sideband power (dBc) above which a carrier with symmetric sidebands is AM.
@@ -557,6 +562,14 @@ def compute_layout(
             seeds.append(bin_index(spectrum, 2 * f0 - strongest.frequency_hz))
     if not seeds:
         seeds.append(int(np.argmax(np.where(mask, -np.inf, spectrum.psd))))
+    # Lines near the carrier and not far below the strongest: tones and their products.
+    if strongest is not None:
+        ref_f = f0 if f0 is not None else strongest.frequency_hz
+        for p in peaks:
+            if mask[p.index] or abs(p.frequency_hz - ref_f) > _LINE_SEED_HZ:
+                continue
+            if p.power >= strongest.power * 10 ** (_LINE_SEED_DB / 10):
+                seeds.append(p.index)
     lo_i, hi_i = min(seeds), max(seeds)
     gap_bins = max(4 * (2 * h + 1), int(math.ceil(150.0 / spectrum.bin_hz)))
     lo_i, hi_i = _grow(above, lo_i, hi_i, gap_bins)

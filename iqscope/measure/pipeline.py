@@ -171,7 +171,7 @@ def plan_pass(sample_rate_hz: float, n_samples: int, resolution_hz: float | None
     step_frac = 1.0 - OVERLAP
     max_nfft = int(n_samples / (1.0 + (MIN_AVERAGES - 1) * step_frac)) if resolution_hz is None else n_samples
     if n_samples < 16:
-        nfft = max(1, n_samples)
+        nfft = 16  # no segment completes: an empty spectrum, every figure null with a note
     elif nfft > max_nfft:
         new = max(16, _prev_fast_len(max(16, max_nfft)))
         warnings.append(

@@ -1,0 +1,139 @@
+"""Benchmark: a full analysis (``iqscope grade``'s pipeline) against scipy's welch alone.
+
+Creates a 64 Mi-sample cf32 SigMF recording (a DSB signal with a residual carrier and
+noise, 48 kS/s, about 23 minutes) in ``benchmarks/_data/`` (git-ignored; reused on
+later runs), then, in one run and on the same file:
+
+1. ``iqscope.measure.analyse`` on the recording opened with ``iqscope.io.open_recording``
+   (spectrum, levels, envelope, spectrogram, location, every provider);
+2. ``scipy.signal.welch(x, fs, nperseg=4096, return_onesided=False)`` alone on an
+   ``np.memmap`` of the same data file.
+
+Each runs in its own child process so that its peak resident memory
+(``resource.getrusage(RUSAGE_SELF).ru_maxrss``) is its own. Prints the times, their
+ratio and both peaks. Not a test: nothing is asserted.
+
+Usage::
+
+    python benchmarks/bench_grade.py [--samples N] [--rate HZ] [--keep]
+"""
+
+from __future__ import annotations
+
+import argparse
+import json
+import os
+import resource
+import subprocess
+import sys
+import time
+from pathlib import Path
+
+HERE = Path(__file__).resolve().parent
+BENCH = HERE / "_data"
+
+
+def make_file(n: int, fs: float) -> Path:
+    """Write the benchmark recording once (streamed in blocks); return its meta path."""
+    import numpy as np
+
+    from iqscope.io import write_sigmf
+
+    base = BENCH / f"dsb_{n}_{int(fs)}"
+    meta = base.with_suffix(".sigmf-meta")
+    if meta.exists() and base.with_suffix(".sigmf-data").exists():
+        return meta
+    BENCH.mkdir(parents=True, exist_ok=True)
+    rng = np.random.default_rng(20261201)
+    f0, fm, a = 3210.7, 1013.3, 0.25
+    leak = np.sqrt(2 * a * a / 10 ** (37.6 / 10))  # carrier 37.6 dB below the sidebands
+
+    def blocks():  # type: ignore[no-untyped-def]
+        step = 1 << 22
+        for s in range(0, n, step):
+            m = min(step, n - s)
+            t = (np.arange(s, s + m) / fs).astype(np.float64)
+            x = a * np.exp(2j * np.pi * (f0 + fm) * t) + a * np.exp(2j * np.pi * (f0 - fm) * t + 0.7j)
+            x += leak * np.exp(2j * np.pi * f0 * t)
+            x += 1e-4 / np.sqrt(2) * (rng.standard_normal(m) + 1j * rng.standard_normal(m))
+            yield x.astype(np.complex64)
+
+    return write_sigmf(base, blocks(), fs, center_frequency_hz=7.1e6, description="iqscope benchmark")
+
+
+def child_analyse(meta: str) -> None:
+    from iqscope.io import open_recording
+    from iqscope.measure import analyse
+
+    t0 = time.perf_counter()
+    with open_recording(meta) as rec:
+        an = analyse(rec)
+    dt = time.perf_counter() - t0
+    cs = an.measurements.get("carrier_suppression_db")
+    print(
+        json.dumps(
+            {
+                "seconds": dt,
+                "maxrss_mb": resource.getrusage(resource.RUSAGE_SELF).ru_maxrss / 1024.0,
+                "mode": an.signal.mode,
+                "carrier_suppression_db": None if cs is None else cs.value,
+                "nfft": None if an.spectrum is None else an.spectrum.psd.size,
+                "n_averages": None if an.spectrum is None else an.spectrum.n_averages,
+            }
+        )
+    )
+
+
+def child_welch(data: str, fs: float) -> None:
+    import numpy as np
+    import scipy.signal
+
+    t0 = time.perf_counter()
+    x = np.memmap(data, dtype=np.complex64, mode="r")
+    f, p = scipy.signal.welch(x, fs, nperseg=4096, return_onesided=False)
+    dt = time.perf_counter() - t0
+    print(json.dumps({"seconds": dt, "maxrss_mb": resource.getrusage(resource.RUSAGE_SELF).ru_maxrss / 1024.0}))
+
+
+def run_child(args: list[str]) -> dict[str, float]:
+    out = subprocess.run([sys.executable, __file__, *args], check=True, capture_output=True, text=True)
+    return json.loads(out.stdout.strip().splitlines()[-1])  # type: ignore[no-any-return]
+
+
+def main() -> None:
+    ap = argparse.ArgumentParser(description=__doc__.splitlines()[0])
+    ap.add_argument("--samples", type=int, default=64 * 2**20)
+    ap.add_argument("--rate", type=float, default=48000.0)
+    ap.add_argument("--keep", action="store_true", help="keep the recording for later runs")
+    ap.add_argument("--child", choices=["analyse", "welch"], help=argparse.SUPPRESS)
+    ap.add_argument("--file", help=argparse.SUPPRESS)
+    a = ap.parse_args()
+    if a.child == "analyse":
+        child_analyse(a.file)
+        return
+    if a.child == "welch":
+        child_welch(a.file, a.rate)
+        return
+    t0 = time.perf_counter()
+    meta = make_file(a.samples, a.rate)
+    data = meta.with_suffix(".sigmf-data")
+    print(f"recording: {meta} ({a.samples} samples, {os.path.getsize(data) / 2**20:.0f} MiB; made/found in "
+          f"{time.perf_counter() - t0:.1f} s)")
+    # Warm the page cache for both (the same file).
+    with open(data, "rb") as fh:
+        while fh.read(1 << 24):
+            pass
+    ours = run_child(["--child", "analyse", "--file", str(meta)])
+    base = run_child(["--child", "welch", "--file", str(data), "--rate", str(a.rate)])
+    print(f"iqscope analyse : {ours['seconds']:.2f} s, peak RSS {ours['maxrss_mb']:.0f} MB "
+          f"(mode {ours['mode']}, carrier suppression {ours['carrier_suppression_db']:.2f} dB, "
+          f"nfft {ours['nfft']}, {ours['n_averages']} averages)")
+    print(f"scipy welch     : {base['seconds']:.2f} s, peak RSS {base['maxrss_mb']:.0f} MB (nperseg 4096)")
+    print(f"ratio welch/analyse: {base['seconds'] / ours['seconds']:.1f}x")
+    if not a.keep:
+        for p in (meta, data):
+            p.unlink(missing_ok=True)
+
+
+if __name__ == "__main__":
+    main()
