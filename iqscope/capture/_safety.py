@@ -89,7 +89,10 @@ class InputLevel:
             )
         if self.verdict == "overdrive":
             return f"{head}: above {self.limit_dbm:+.0f} dBm the receiver is overdriven; {need}"
-        return f"{head}: within the linear range ({need})"
+        return (
+            f"{head}: within the linear range (at most {self.limit_dbm:+.0f} dBm; common "
+            "practice, your receiver's datasheet decides)"
+        )
 
 
 def assess_input_level(
