@@ -39,10 +39,10 @@ __all__ = [
 #: One line telling a user how to get SoapySDR (it is not on the Python package index).
 INSTALL_HINT: Final = (
     "SoapySDR's Python module is not installed: install it with your system package manager "
-    "(e.g. 'apt install python3-soapysdr' on Debian/Ubuntu, 'dnf install python3-SoapySDR' on "
-    "Fedora) together with the SoapySDR driver module for your receiver (package names like "
-    "soapysdr-module-<driver>), then run iqscope from a Python that can see system packages "
-    "(a virtual environment made with --system-site-packages)"
+    "(your distribution's python3-soapysdr or python3-SoapySDR package) together with the "
+    "SoapySDR driver module for your receiver (package names like soapysdr-module-<driver>), "
+    "then run iqscope from a Python that can see system packages (a virtual environment made "
+    "with --system-site-packages)"
 )
 
 #: Stream error codes of ``SoapySDR/Errors.h``, used when the module lacks a constant.
