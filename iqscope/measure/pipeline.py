@@ -51,6 +51,7 @@ from .artefacts import artefact_figures
 from .bandwidth import bandwidth_figures
 from .carrier import carrier_figures
 from .designator import designator_figures
+from .drift import drift_figures
 from .imd import two_tone_figures
 from .levels import level_figures
 from .locate import CoreContext, StreamStats, compute_layout, locate_signal
@@ -97,6 +98,7 @@ PROVIDERS: list[FigureProvider] = [
     two_tone_figures,  # imd3/5/7_dbc, imd3/5/7_db_pep, tone_balance_db in --mode two-tone
     spur_figures,  # worst_spur_dbc with the spur table (SM.1539 domains)
     designator_figures,  # necessary_bandwidth_hz with the emission designator
+    drift_figures,  # drift_hz_per_min, drift_peak_to_peak_hz ... (streams the recording again)
 ]
 
 #: Report order of the stable measurement keys (DESIGN.md section 4); others follow.
