@@ -141,7 +141,7 @@ class TestSynthesizedDrifts:
         key_n = int(t_key * fs)
         x[:key_n] = (0.01 / math.sqrt(2) * (rng.standard_normal(key_n) + 1j * rng.standard_normal(key_n)))
         rec = ArrayRecording(x, fs)
-        res = analyse_drift(rec, carrier_hz=280.0, block_s=0.25)
+        res = analyse_drift(rec, carrier_hz=280.0, nominal_hz=280.0, block_s=0.25)
         st = res.measurements["warmup_settling_s"]
         # the band is about the measured final value, which still holds the exponential's
         # small remainder: f_end - 250 Hz = final_offset_hz + 280 - 250 (~0.01 Hz)
@@ -183,7 +183,7 @@ class TestSynthesizedDrifts:
         """Receiver drift r(t) (linear + a slow wobble) shifts both lines; the transmitter
         line has its own 0.77 Hz/min. With the stable line as reference the slope is
         0.77 Hz/min within its stated uncertainty; without it, 0.77 + 2.9."""
-        fs, dur = 4000.0, 180.0
+        fs, dur = 4000.0, 120.0
         n = int(fs * dur)
         t = np.arange(n) / fs
         rx = 2.9 / 60 * t + 0.4 * np.sin(2 * np.pi * t / 47.0)
@@ -204,8 +204,8 @@ class TestSynthesizedDrifts:
         assert "Includes the receiver" in s_plain.note
         # absolute reference (a standard at exactly 10 MHz - 1300.7 Hz): the receiver's
         # mean error (mean of rx) is removed from the offset too.
-        abs_ref = analyse_drift(rec, carrier_hz=700.0, reference_hz=10.0e6 - 1300.7)
-        off = abs_ref.measurements["frequency_offset_hz"]
+        abs_ref = analyse_drift(rec, carrier_hz=700.0, nominal_hz=700.0, reference_hz=10.0e6 - 1300.7)
+        off = abs_ref.measurements["frequency_error_hz"]
         true_tx_off = float(np.mean(tx - rx)) - 700.0
         assert off.value == pytest.approx(true_tx_off, abs=0.01)
         assert "removed" in off.note
@@ -221,12 +221,13 @@ class TestSynthesizedDrifts:
         x = synth(c + audio, fs, amp=0.2, extra=None)
         lower = synth(c - audio, fs, amp=0.2, noise_rms=0.0, seed=2)
         rec = ArrayRecording(x + lower, fs)
-        res = analyse_drift(rec, mode="dsb", carrier_hz=150.0)
+        res = analyse_drift(rec, mode="dsb", carrier_hz=150.0, nominal_hz=150.0)
         assert res.track.plan.kind == "sideband pair"
         assert res.track.lines_hz.shape[1] == 2
         m = res.measurements
         assert m["drift_hz_per_min"].value == pytest.approx(1.3, abs=0.02)
-        assert m["frequency_offset_hz"].value == pytest.approx(float(np.mean(c)) - 150.0, abs=0.02)
+        assert m["frequency_offset_hz"].value == pytest.approx(float(np.mean(c)), abs=0.02)
+        assert m["frequency_error_hz"].value == pytest.approx(float(np.mean(c)) - 150.0, abs=0.02)
 
     def test_auto_finds_pair_without_carrier(self) -> None:
         fs = 8000.0
@@ -241,10 +242,11 @@ class TestSynthesizedDrifts:
         fs = 8000.0
         t = np.arange(int(fs * 30)) / fs
         x = synth(np.full(t.size, 1003.21), fs)
-        res = analyse_drift(ArrayRecording(x, fs), mode="usb", carrier_hz=0.0, tone_hz=1000.0)
+        res = analyse_drift(ArrayRecording(x, fs), mode="usb", carrier_hz=0.0, nominal_hz=0.0, tone_hz=1000.0)
         assert res.track.plan.kind == "tone"
         assert res.measurements["frequency_offset_hz"].value == pytest.approx(3.21, abs=0.01)
-        no_tone = analyse_drift(ArrayRecording(x, fs), mode="usb", carrier_hz=0.0)
+        assert res.measurements["frequency_error_hz"].value == pytest.approx(3.21, abs=0.01)
+        no_tone = analyse_drift(ArrayRecording(x, fs), mode="usb", carrier_hz=0.0, nominal_hz=0.0)
         assert no_tone.measurements["frequency_offset_hz"].value is None
         assert "--tone" in no_tone.measurements["frequency_offset_hz"].note
 
@@ -294,8 +296,10 @@ class TestTracker:
 
     def test_choose_block(self) -> None:
         # strong line at 48 kS/s: the shortest octave giving 0.02 Hz
-        t = choose_block_s(100.0, 48_000.0, 3600.0)
-        assert t in (0.0625, 0.125)
+        # strong line: the 0.25-s floor (CRLB at 0.25 s is already < 0.02 Hz)
+        assert choose_block_s(100.0, 48_000.0, 3600.0) == 0.25
+        # short recording: blocks of at most 1/8 of it
+        assert choose_block_s(100.0, 48_000.0, 1.0) == 0.125
         # weak line (-20 dB per sample): longer blocks
         assert choose_block_s(0.01, 48_000.0, 3600.0) >= 0.5
         with pytest.raises(MeasurementError, match="too short"):
@@ -351,8 +355,9 @@ class TestProvider:
         rec = ArrayRecording(synth(612.0 + 1.7 / 60 * t, fs), fs, center_frequency_hz=3.5e6)
         out = drift_figures(_ctx(rec, "cw", 612.0, carrier_hz=600.0))
         assert out.measurements["drift_hz_per_min"].value == pytest.approx(1.7, abs=0.05)
-        # offset from the nominal carrier given with --carrier (600 Hz)
-        assert out.measurements["frequency_offset_hz"].value == pytest.approx(612.0 + 0.85 - 600.0, abs=0.05)
+        # offset from the capture centre; error from the nominal carrier given with --carrier
+        assert out.measurements["frequency_offset_hz"].value == pytest.approx(612.0 + 0.85, abs=0.05)
+        assert out.measurements["frequency_error_hz"].value == pytest.approx(612.0 + 0.85 - 600.0, abs=0.05)
         assert "allan_deviation" in out.measurements
         tr = out.traces["frequency"]
         assert tr.x.size == tr.y.size > 8

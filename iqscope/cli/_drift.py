@@ -131,6 +131,7 @@ def run(args: argparse.Namespace) -> int:
                 rec,
                 mode=args.mode,
                 carrier_hz=args.carrier,
+                nominal_hz=args.carrier,
                 tone_hz=args.tone,
                 line_hz=args.line,
                 reference_hz=args.reference,

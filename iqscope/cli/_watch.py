@@ -126,8 +126,8 @@ def watch(
         sleep(args.poll)
     assert rec is not None
     spec, noise = survey_spectrum(rec)
-    setup = prepare_tracking(rec, spec, noise, mode=args.mode, carrier_hz=args.carrier, tone_hz=args.tone,
-                             line_hz=args.line, reference_hz=args.reference)
+    setup = prepare_tracking(rec, spec, noise, mode=args.mode, carrier_hz=args.carrier, nominal_hz=args.carrier,
+                             tone_hz=args.tone, line_hz=args.line, reference_hz=args.reference)
     block_s = args.block or choose_block_s(setup.plan.snr, rec.sample_rate_hz, 8 * MAX_AUTO_BLOCK_S)
     tracker = LineTracker(rec.sample_rate_hz, setup.plan, block_s=block_s, span_hz=args.span,
                           stable_hz=setup.stable_search_hz, stable_is_absolute=setup.stable_is_absolute,

@@ -14,8 +14,9 @@ one block); in each block the line is measured with the single-tone estimator of
 so it is followed as it moves. :func:`drift_measurements` turns the track into figures
 (see ``docs/drift.md`` for the exact definitions):
 
-``frequency_offset_hz``, ``drift_hz_per_min``, ``drift_peak_to_peak_hz``,
-``drift_worst_window_hz``, ``warmup_settling_s`` and ``allan_deviation``.
+``frequency_offset_hz`` (and ``frequency_error_hz`` from a nominal carrier),
+``drift_hz_per_min``, ``drift_peak_to_peak_hz``, ``drift_worst_window_hz``,
+``warmup_settling_s`` and ``allan_deviation``.
 
 With a *stable line* (``--reference``: a standard-frequency transmission or a disciplined
 marker received in the same capture) the stable line is followed too and the drift is
@@ -90,6 +91,9 @@ DEFAULT_SETTLE_BAND_HZ = 1.0
 TARGET_SIGMA_HZ = 0.02
 #: Post-integration SNR (N * SNR, linear) a block must reach to follow the line reliably.
 MIN_BLOCK_SNR = 60.0
+#: Shortest automatic block, s (shorter blocks only when the recording is under 8 of these):
+#: drift needs no finer time resolution, and fewer blocks cost less per hour of recording.
+MIN_AUTO_BLOCK_S = 0.25
 #: Fewest blocks a track must have to give figures.
 MIN_BLOCKS = 8
 #: Candidate block lengths, s (octaves, so ADEV taus are round numbers).
@@ -364,10 +368,11 @@ def choose_block_s(
 ) -> float:
     """Block length for the tracker from the line's per-sample SNR.
 
-    The shortest octave length (1/128 .. 8 s) whose Cramér–Rao 1-sigma,
+    The shortest octave length (0.25 .. 8 s) whose Cramér–Rao 1-sigma,
     ``sqrt(6 / ((2 pi)^2 SNR fs T^3))``, is at most ``target_sigma_hz`` and whose
     post-integration SNR ``SNR fs T`` reaches 60 (18 dB, well above the estimator's
-    threshold), but no longer than a 1/8 of the recording.
+    threshold), but no longer than a 1/8 of the recording (down to 1/128 s for short
+    recordings).
 
     Raises
     ------
@@ -379,7 +384,7 @@ def choose_block_s(
     fs = sample_rate_hz
     t_sigma = (6.0 / ((2 * math.pi) ** 2 * snr * fs * target_sigma_hz**2)) ** (1.0 / 3.0)
     t_det = MIN_BLOCK_SNR / (snr * fs)
-    need = max(t_sigma, t_det, 64.0 / fs)
+    need = max(t_sigma, t_det, 64.0 / fs, MIN_AUTO_BLOCK_S)
     limit = duration_s / MIN_BLOCKS
     fits = [t for t in _BLOCK_CHOICES if t <= limit]
     if not fits or max(fits) < max(t_det, 64.0 / fs):
@@ -777,7 +782,8 @@ class DriftResult:
     fit: tuple[float, float] | None = None
     """Regression line of the reference frequency: (intercept Hz at t = 0, slope Hz/s)."""
     nominal_offset_hz: float = 0.0
-    """What ``frequency_offset_hz`` is measured from, Hz offset (0: the capture centre)."""
+    """The nominal carrier (Hz offset) the trace and ``frequency_error_hz`` are measured
+    from (0: the capture centre, no nominal given)."""
     warnings: tuple[str, ...] = ()
     details: Mapping[str, Any] = field(default_factory=dict)
 
@@ -788,7 +794,7 @@ class DriftResult:
             x=t,
             y=f - self.nominal_offset_hz,
             x_label="time (s)",
-            y_label="frequency offset (Hz)",
+            y_label="frequency offset (Hz)" if self.nominal_offset_hz == 0.0 else "frequency error from nominal (Hz)",
             extra={
                 "sigma": s,
                 "fit": self.fit,
@@ -895,8 +901,9 @@ def drift_measurements(
     track : FrequencyTrack
         From :func:`track_frequency` or :class:`LineTracker`.
     nominal_offset_hz : float, optional
-        Where the carrier should be, Hz offset (the user's ``--carrier``). Default 0:
-        ``frequency_offset_hz`` is then the carrier's offset from the capture centre.
+        Where the carrier should be, Hz offset (the user's ``--carrier``). When given,
+        ``frequency_error_hz`` (mean frequency minus it) is added and the trace is drawn
+        relative to it. ``frequency_offset_hz`` is always from the capture centre.
     window_s : float
         Window for ``drift_worst_window_hz``, s.
     settle_band_hz : float
@@ -951,28 +958,36 @@ def drift_measurements(
     else:
         where = "the followed line"
     if track.plan.kind == "tone" and track.plan.carrier_shift_hz is None:
-        ms["frequency_offset_hz"] = failed(
-            "Hz", "not measured: the SSB tone's audio frequency is unknown (give --tone)."
-        )
+        why = "not measured: the SSB tone's audio frequency is unknown (give --tone)."
+        ms["frequency_offset_hz"] = failed("Hz", why)
+        if nominal_offset_hz is not None:
+            ms["frequency_error_hz"] = failed("Hz", why)
     else:
         u_stat = math.sqrt(float(np.sum(s * s))) / s.size
-        ref_txt = "the nominal carrier (--carrier)" if nominal_offset_hz is not None else "the capture centre"
         cal = (
             " The receiver's frequency error is removed using the stable line's stated frequency."
             if relative and track.stable_is_absolute
             else " Excludes the receiver's own frequency calibration error (its reference oscillator)."
         )
         absolute = (track.center_frequency_hz + mean_f) if track.center_frequency_hz is not None else None
-        det: dict[str, Any] = {"mean_offset_from_centre_hz": mean_f}
+        det: dict[str, Any] = {}
         if absolute is not None:
             det["mean_frequency_hz"] = absolute
         ms["frequency_offset_hz"] = Measurement(
-            value=mean_f - nominal,
+            value=mean_f,
             unit="Hz",
             uncertainty=u_stat,
-            note=f"Time-mean frequency of {where} minus {ref_txt}, from {what}.{cal}",
+            note=f"Time-mean frequency of {where} minus the capture centre, from {what}.{cal}",
             details=det,
         )
+        if nominal_offset_hz is not None:
+            ms["frequency_error_hz"] = Measurement(
+                value=mean_f - nominal,
+                unit="Hz",
+                uncertainty=u_stat,
+                note=f"Time-mean frequency of {where} minus the nominal carrier (--carrier).{cal}",
+                details=dict(det, nominal_offset_hz=nominal),
+            )
 
     # --- slope ----------------------------------------------------------------------
     slope, icpt, se, rho = _slope(t, f)
@@ -1224,14 +1239,14 @@ def prepare_tracking(
 
     ``carrier_hz`` (where the carrier is: helps choose the line), ``line_hz`` (follow this
     line), ``reference_hz`` (a stable line: reference mode) and ``nominal_hz`` (where the
-    carrier should be: ``frequency_offset_hz`` is measured from it; default ``carrier_hz``)
+    carrier should be, the user's ``--carrier``: ``frequency_error_hz`` is measured from it)
     are offsets when within +/- fs/2, else absolute RF frequencies (need the capture centre).
     """
     fs = recording.sample_rate_hz
     cf = recording.center_frequency_hz
     carrier = resolve_frequency(carrier_hz, fs, cf, "--carrier")[0] if carrier_hz is not None else None
     line = resolve_frequency(line_hz, fs, cf, "--line")[0] if line_hz is not None else None
-    nominal = resolve_frequency(nominal_hz, fs, cf, "--carrier")[0] if nominal_hz is not None else carrier
+    nominal = resolve_frequency(nominal_hz, fs, cf, "--carrier")[0] if nominal_hz is not None else None
     stable: float | None = None
     stable_abs = False
     if reference_hz is not None:

@@ -43,6 +43,7 @@ DRIFT_SCHEMA: Final = "iqscope.drift/1"
 #: Figures in report order, with their labels.
 DRIFT_FIGURES: Final[Mapping[str, str]] = {
     "frequency_offset_hz": "Frequency offset",
+    "frequency_error_hz": "Error from nominal",
     "drift_hz_per_min": "Drift rate",
     "drift_peak_to_peak_hz": "Peak-to-peak",
     "drift_worst_window_hz": "Worst window",
