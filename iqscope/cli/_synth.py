@@ -12,7 +12,7 @@ import json
 import math
 import sys
 from pathlib import Path
-from typing import Any
+from typing import Any, Literal
 
 from ..errors import UsageError
 from ..synth import (
@@ -280,7 +280,9 @@ def run(args: argparse.Namespace) -> int:
                 raise UsageError(f"synth audio writes a WAV file; name it .wav, not {out.name!r}")
             path = write_audio(out, spec, bits=args.bits, force=args.force)
         else:
-            fmt = args.format or ("wav" if out.suffix.lower() == ".wav" else "sigmf")
+            fmt: Literal["sigmf", "wav"] = args.format or (
+                "wav" if out.suffix.lower() == ".wav" else "sigmf"
+            )
             bits: int | str = args.bits if args.bits == "float" else int(args.bits)
             path = write_signal(out, spec, format=fmt, datatype=args.datatype, bits=bits,
                                 force=args.force)

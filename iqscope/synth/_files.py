@@ -117,7 +117,8 @@ def synth_metadata(spec: SignalSpec | AudioSpec, generator: str | None = None) -
     out: dict[str, Any] = {"generator": gen, "spec": spec_to_dict(spec)}
     if isinstance(spec, SignalSpec):
         out["truth"] = truth(spec)
-    return _jsonable(out)
+    result: dict[str, Any] = _jsonable(out)
+    return result
 
 
 def write_signal(
@@ -208,7 +209,7 @@ def write_audio(
     scale = float(2 ** (bits - 1))
     try:
         with atomic_write(target, force=force) as fh:
-            with wave.open(fh, "wb") as wav:  # type: ignore[arg-type]
+            with wave.open(fh, "wb") as wav:
                 wav.setnchannels(1)
                 wav.setsampwidth(bits // 8)
                 wav.setframerate(int(rate))

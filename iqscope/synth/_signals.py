@@ -248,8 +248,8 @@ def cubic_k_for_imd3(imd3_dbc: float, tone_amplitude: float, compressive: bool =
         raise ValueError(f"{imd3_dbc=} must be negative")
     if not tone_amplitude > 0:
         raise ValueError(f"{tone_amplitude=} must be > 0")
-    r = 10.0 ** (imd3_dbc / 20.0)
-    a2 = tone_amplitude**2
+    r = float(10.0 ** (imd3_dbc / 20.0))
+    a2 = float(tone_amplitude) ** 2
     if compressive:
         # |k|a²/(1 - 3|k|a²) = r  ->  |k|a² = r / (1 + 3r)
         return -(r / (1.0 + 3.0 * r)) / a2
