@@ -153,7 +153,7 @@ LINE_HALF_WIDTH_BINS: Final = 5
 def _median_bias(dof: float) -> float:
     """Median over mean of a chi-square variable with ``dof`` degrees of freedom.
 
-    Wilson-Hilferty approximation ``(1 - 2/(9 dof))^3`` (N. L. Johnson, S. Kotz,
+    Wilson-Hilferty approximation ``(1 - 2/(9 dof))^3`` (from memory: N. L. Johnson, S. Kotz,
     N. Balakrishnan, *Continuous Univariate Distributions*, vol. 1, 2nd ed., Wiley 1994,
     ch. 18); exact enough here because it only corrects a subtracted noise term.
     """
