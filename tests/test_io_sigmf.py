@@ -233,3 +233,12 @@ def test_writer_refuses_to_overwrite(tmp_path: Path, rng: np.random.Generator) -
         write_sigmf(tmp_path / "w2", x, 48000, datatype="ci24_le")
     with pytest.raises(ValueError):
         write_sigmf(tmp_path / "w3", x, -1)
+
+
+def test_writer_fails_cleanly(tmp_path: Path) -> None:
+    """Unencodable metadata or no samples: ValueError and no file left behind."""
+    with pytest.raises(ValueError, match="JSON"):
+        write_sigmf(tmp_path / "j", np.zeros(4, np.complex64), 1000, extra_global={"x:y": object()})
+    with pytest.raises(ValueError, match="no samples"):
+        write_sigmf(tmp_path / "e", iter(()), 1000)
+    assert list(tmp_path.iterdir()) == []

@@ -30,7 +30,7 @@ from typing import Any, Final
 import numpy as np
 import numpy.typing as npt
 
-from ..errors import FormatError, InputMissingError, MetadataError, OutputError
+from ..errors import FormatError, InputMissingError, MetadataError
 from ._atomic import atomic_write, atomic_write_text, check_can_write
 from ._common import check_center, parse_json_bytes, read_json_file, resolve_rate, safe_sibling
 from ._filerec import ByteRun, FileRecording, file_size
@@ -423,6 +423,13 @@ def _annotation_json(a: Annotation) -> dict[str, Any]:
     return out
 
 
+def _dump(doc: Mapping[str, Any]) -> str:
+    try:
+        return json.dumps(doc, indent=4, allow_nan=False) + "\n"
+    except (TypeError, ValueError) as exc:
+        raise ValueError(f"metadata holds a value JSON cannot carry: {exc}") from None
+
+
 def write_sigmf(
     path: str | Path,
     samples: npt.ArrayLike | Iterable[npt.ArrayLike],
@@ -489,26 +496,18 @@ def write_sigmf(
     check_can_write(meta_path, force=force)
     check_can_write(data_path, force=force)
 
-    sha = hashlib.sha512()
-    n = 0
-    with atomic_write(data_path, force=force) as fh:
-        for block in iter_blocks(samples):
-            raw = fmt.encode(block)
-            sha.update(raw)
-            fh.write(raw)
-            n += block.size
     glob: dict[str, Any] = {
         K_DATATYPE: fmt.name,
         K_VERSION: SIGMF_SPEC,
         K_SAMPLE_RATE: rate,
         K_NUM_CHANNELS: 1,
-        K_SHA512: sha.hexdigest(),
+        K_SHA512: "",
         K_RECORDER: f"iqscope {__version__}",
     }
     if description:
         glob[K_DESCRIPTION] = description
     for k, v in (extra_global or {}).items():
-        if k in (K_DATATYPE, K_SHA512, K_NUM_CHANNELS):
+        if k in (K_DATATYPE, K_SHA512, K_NUM_CHANNELS, K_SAMPLE_RATE):
             raise ValueError(f"extra_global may not set {k}")
         glob[k] = v
     capture: dict[str, Any] = {K_SAMPLE_START: 0}
@@ -518,12 +517,22 @@ def write_sigmf(
         capture[K_DATETIME] = _iso_utc(datetime)
     ann = sorted((_annotation_json(a) for a in annotations), key=lambda d: d[K_SAMPLE_START])
     doc = {"global": glob, "captures": [capture], "annotations": ann}
+    _dump(doc)  # fail on unencodable metadata before any file is written
+
+    sha = hashlib.sha512()
+    n = 0
+    with atomic_write(data_path, force=force) as fh:
+        for block in iter_blocks(samples):
+            raw = fmt.encode(block)
+            sha.update(raw)
+            fh.write(raw)
+            n += block.size
+        if n == 0:
+            raise ValueError("no samples to write")
+    glob[K_SHA512] = sha.hexdigest()
     try:
-        text = json.dumps(doc, indent=4, allow_nan=False) + "\n"
-    except ValueError as exc:
-        raise ValueError(f"metadata holds a value JSON cannot carry: {exc}") from None
-    try:
-        atomic_write_text(meta_path, text, force=force)
-    except OutputError:
+        atomic_write_text(meta_path, _dump(doc), force=force)
+    except BaseException:
+        data_path.unlink(missing_ok=True)  # the dataset we just wrote is useless alone
         raise
     return meta_path

@@ -286,6 +286,8 @@ def write_wav(
             data_bytes += len(raw)
             if data_bytes > 0xFFFFFFFF - 64:
                 raise OutputError("WAV cannot hold more than 4 GiB of samples; write SigMF instead", target)
+        if data_bytes == 0:
+            raise ValueError("no samples to write")
         if data_bytes & 1:  # pragma: no cover - every format has an even sample size
             fh.write(b"\x00")
         fh.seek(0)
