@@ -213,3 +213,22 @@ def test_atomic_write_keeps_mode_on_force(tmp_path: Path) -> None:
     os.chmod(target, 0o640)
     atomic_write_text(target, "new", force=True)
     assert (os.stat(target).st_mode & 0o777) == 0o640
+
+
+@pytest.mark.parametrize("size,overlap", [(5, 0), (7, 3), (64, 63), (1000, 0)])
+def test_nonfinite_counted_once_with_overlapping_chunks(tmp_path: Path, size: int, overlap: int) -> None:
+    """NaN/Inf samples come back as 0; a front-to-back pass counts each exactly once,
+    whatever the overlap; re-reading does not count them again."""
+    x = np.full(200, 0.5 + 0.5j, np.complex64)
+    bad = [0, 13, 14, 99, 199]
+    x[bad] = np.nan
+    path = tmp_path / "n.cf32"
+    path.write_bytes(x.tobytes())
+    with open_recording(path, rate=1000) as rec:
+        for block in rec.chunks(size, overlap):
+            assert np.all(np.isfinite(block))
+        assert rec.nonfinite_count == len(bad)
+        rec.read(0, 50)
+        assert rec.nonfinite_count == len(bad)
+        assert rec.read()[bad].tolist() == [0j] * len(bad)
+        assert any("non-finite" in w for w in rec.warnings)
