@@ -46,6 +46,15 @@ def test_format_value(args: tuple, expected: str) -> None:
     assert format_value(*args) == expected
 
 
+def test_tiny_values_in_scientific_notation() -> None:
+    # An Allan deviation of fractional frequency, or a drift of micro-hertz: no "0.0000".
+    assert format_value(3.46e-13, "1", 3.46e-13) == "(3 ± 3)e-13"
+    assert format_value(1.165e-5, "Hz", 4.4e-6) == "(1.2 ± 0.4)e-05 Hz"
+    assert format_value(2e-4, "1") == "2.0e-04"
+    assert format_bound(1.165e-5, "Hz", "upper") == "≤ 1.2e-05 Hz (noise-limited)"
+    assert format_bound(0.83, "Hz", "upper") == "≤ 0.830 Hz (noise-limited)"
+
+
 def test_ascii_variant() -> None:
     assert format_value(37.6, "dB", 0.2, ascii_only=True) == "37.6 +/- 0.2 dB"
     assert format_bound(62.7, "dB", "lower", ascii_only=True) == ">= 62 dB (noise-limited)"

@@ -35,6 +35,8 @@ _LOG_UNITS: Final = frozenset({"dB", "dBc", "dBFS", "dBFS/Hz", "dBm", "dB PEP", 
 _MAX_DECIMALS: Final = {"dB": 2, "Hz": 3, "1": 4, "Hz/min": 3, "Hz/s": 4, "s": 3, "ppm": 4}
 _DEFAULT_DECIMALS: Final = {"dB": 1, "1": 3, "Hz/min": 2, "Hz/s": 3, "s": 1, "ppm": 3}
 _SI: Final = ((1e9, "G"), (1e6, "M"), (1e3, "k"), (1.0, ""))
+#: Below this magnitude (non-dB units) numbers are shown in scientific notation.
+_TINY: Final = 1e-3
 
 
 def ge_le(ascii_only: bool = False) -> tuple[str, str, str]:
@@ -97,6 +99,8 @@ def format_value(
     _, _, pm = ge_le(ascii_only)
     family = _family(unit)
     u = uncertainty if uncertainty is not None and math.isfinite(uncertainty) and uncertainty > 0 else None
+    if family != "dB" and value != 0.0 and abs(value) < _TINY:
+        return _scientific(value, u, unit, pm)
     factor, shown_unit = _si_scale(unit, abs(value) if value != 0 else (u or 0.0))
     v = value / factor
     max_dec = _MAX_DECIMALS.get(family, 3) + (round(math.log10(factor)) if unit == "Hz" else 0)
@@ -123,25 +127,43 @@ def format_value(
     return f"{_fixed(v, dec)} {pm} {_fixed(us, dec)}{_suffix(shown_unit)}"
 
 
+def _scientific(value: float, u: float | None, unit: str, pm: str) -> str:
+    """Tiny values: ``"(1.2 ± 0.4)e-05 Hz"`` (digits from the uncertainty, else 2 significant)."""
+    exponent = math.floor(math.log10(abs(value)))
+    m = value / 10.0**exponent
+    if u is None:
+        return f"{m:.1f}e{exponent:+03d}{_suffix(unit)}"
+    um = u / 10.0**exponent
+    dec = min(max(_uncertainty_decimals(um), 0), 3)
+    return f"({_fixed(m, dec)} {pm} {_fixed(um, dec)})e{exponent:+03d}{_suffix(unit)}"
+
+
 def format_bound(value: float, unit: str, bound: str | None, *, ascii_only: bool = False) -> str:
-    """A noise-limited bound, rounded outwards: ``"≥ 62 dB (noise-limited)"``."""
+    """A noise-limited bound, rounded outwards: ``"≥ 62 dB (noise-limited)"``.
+
+    dB figures are shown to whole dB, others to three significant digits.
+    """
     ge, le, _ = ge_le(ascii_only)
+    sign = le if bound == "upper" else ge
+    family = _family(unit)
+    if family != "dB" and value != 0.0 and abs(value) < _TINY:
+        exponent = math.floor(math.log10(abs(value)))
+        m = value / 10.0**exponent
+        m = math.ceil(m * 10 - 1e-9) / 10 if bound == "upper" else math.floor(m * 10 + 1e-9) / 10
+        return f"{sign} {m:.1f}e{exponent:+03d}{_suffix(unit)} (noise-limited)"
     factor, shown_unit = _si_scale(unit, abs(value))
     v = value / factor
-    family = _family(unit)
     if family == "dB":
         dec = 0
-    elif unit == "Hz":
-        dec = 0 if factor == 1.0 else 2
+    elif v == 0.0:
+        dec = 0
     else:
-        dec = _DEFAULT_DECIMALS.get(family, 2)
+        dec = max(0, 2 - math.floor(math.log10(abs(v))))
     scale = 10.0**dec
     if bound == "upper":
         v = math.ceil(v * scale - 1e-9) / scale
-        sign = le
     else:
         v = math.floor(v * scale + 1e-9) / scale
-        sign = ge
     return f"{sign} {_fixed(v, dec)}{_suffix(shown_unit)} (noise-limited)"
 
 
