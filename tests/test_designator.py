@@ -131,3 +131,87 @@ class TestOccupiedBandwidth:
     def test_no_power(self) -> None:
         with pytest.raises(ValueError):
             occupied_bandwidth_from_spectrum(np.arange(5.0), np.zeros(5), 1.0)
+
+
+# --------------------------------------------------------------------------------------
+# The provider on synthesized recordings (spectra from iqscope.dsp.averaged_spectrum)
+# --------------------------------------------------------------------------------------
+FS = 48_000.0
+N = 4 * 48_000
+NOISE_PSD = 1e-12
+
+
+def _band(rng: np.random.Generator, lo: float, hi: float, power: float) -> np.ndarray:
+    """Flat band-limited complex noise between lo and hi (Hz offsets) of mean power ``power``."""
+    x = np.zeros(N, complex)
+    fr = np.fft.fftfreq(N, 1 / FS)
+    sel = (fr >= lo) & (fr < hi)
+    x[sel] = rng.standard_normal(sel.sum()) + 1j * rng.standard_normal(sel.sum())
+    s = np.fft.ifft(x)
+    return s * math.sqrt(power / np.mean(np.abs(s) ** 2))
+
+
+def _figures(y: np.ndarray, mode: str, carrier: float = 0.0, peak_power: float | None = None):  # type: ignore[no-untyped-def]
+    from iqscope.dsp import averaged_spectrum
+    from iqscope.io._recording import ArrayRecording
+    from iqscope.measure._analysis import SignalInfo
+    from iqscope.measure._context import AnalysisContext, AnalysisRequest
+    from iqscope.measure.designator import designator_figures
+
+    y = y + (np.random.default_rng(1).standard_normal(N) + 1j * np.random.default_rng(2).standard_normal(N)) * math.sqrt(
+        NOISE_PSD * FS / 2
+    )
+    p = np.abs(y) ** 2
+    ctx = AnalysisContext(
+        recording=ArrayRecording(y, FS, 14e6),
+        request=AnalysisRequest(mode=mode),
+        spectrum=averaged_spectrum(y, 8192, FS),
+        signal=SignalInfo(mode, carrier, 14e6 + carrier),
+        noise_floor_psd=NOISE_PSD,
+        mean_power=float(p.mean()),
+        signal_power=float(p.mean()),
+        peak_power=float(p.max()) if peak_power is None else peak_power,
+    )
+    return designator_figures(ctx).measurements
+
+
+class TestProvider:
+    def test_ssb_voice_band(self, rng: np.random.Generator) -> None:
+        """Flat 300-2700 Hz USB: 99 % OBW = 0.99 x 2400 = 2376 Hz (REFERENCES.md item 3)
+        -> 2K38J3E (no carrier line: suppressed). Tolerance one bin (5.9 Hz)."""
+        m = _figures(_band(rng, 300.0, 2700.0, 0.01), "usb")["necessary_bandwidth_hz"]
+        assert m.value == pytest.approx(2376.0, abs=6.0)
+        assert m.details["designator"] == "2K38J3E"
+
+    def test_ssb_full_carrier(self, rng: np.random.Generator) -> None:
+        """Carrier 5 dB below PEP: H3E (47 CFR 80.207(c): H3E 3-6 dB below PEP)."""
+        y = _band(rng, 300.0, 2700.0, 0.01)
+        pep = 0.2
+        carrier = math.sqrt(pep * 10 ** (-5 / 10)) * np.ones(N)
+        m = _figures(y + carrier, "usb", peak_power=pep)["necessary_bandwidth_hz"]
+        assert m.details["classification"] == "H3E"
+
+    def test_dsb(self, rng: np.random.Generator) -> None:
+        """DSB, audio 300-3000 Hz about the carrier: about 2M = 6 kHz wide -> A3E."""
+        y = _band(rng, -3000.0, -300.0, 0.005) + _band(rng, 300.0, 3000.0, 0.005)
+        m = _figures(y, "dsb")["necessary_bandwidth_hz"]
+        assert m.value == pytest.approx(0.99 * 6000.0, rel=0.02)
+        assert m.details["designator"].endswith("A3E")
+
+    def test_single_line_is_null(self) -> None:
+        """An unmodulated carrier has no necessary bandwidth to estimate: value null, note."""
+        y = 0.1 * np.exp(2j * np.pi * 1234.5 * np.arange(N) / FS)
+        m = _figures(y, "cw", 1234.5)["necessary_bandwidth_hz"]
+        assert m.value is None and "single line" in m.note
+
+    def test_tone_modulated_am_is_null(self) -> None:
+        """AM with a steady 1 kHz tone: three lines, a test signal, not a designator."""
+        t = np.arange(N) / FS
+        y = 0.1 * (1 + 0.8 * np.cos(2 * np.pi * 1000.0 * t)) * np.exp(2j * np.pi * 2000.3 * t)
+        m = _figures(y, "am", 2000.3)["necessary_bandwidth_hz"]
+        assert m.value is None and "discrete lines" in m.note
+
+    def test_two_tone_and_noise_give_nothing(self, rng: np.random.Generator) -> None:
+        assert _figures(_band(rng, 300.0, 2700.0, 0.01), "two-tone") == {}
+        m = _figures(np.zeros(N, complex), "usb")["necessary_bandwidth_hz"]
+        assert m.value is None

@@ -37,7 +37,7 @@ from typing import Final, Literal
 
 import numpy as np
 
-from ..dsp._lines import lobe_half_width_bins
+from ..dsp._lines import find_peaks, line_power, lobe_half_width_bins
 from ..dsp._noise import spectrum_dof, sum_variance_factor
 from ..dsp._types import Spectrum
 from ._context import AnalysisContext, FigureSet
@@ -64,6 +64,10 @@ _UNITS: Final = (("H", Decimal(1)), ("K", Decimal(10) ** 3), ("M", Decimal(10) *
 #: Smallest and largest bandwidth a code can carry: 0.001 Hz (H001) and 999 GHz (999G).
 MIN_CODE_HZ: Final = 0.001
 MAX_CODE_HZ: Final = 999e9
+
+#: An emission with at least this fraction of its power in discrete lines is a test
+#: signal (steady tones): its occupied bandwidth says nothing about the necessary one.
+TONAL_FRACTION: Final = 0.9
 
 #: Boundaries (dB below PEP) used to name an SSB carrier level when it is measured.
 #: Anchors, 47 CFR 80.207(c): H3E carrier 3-6 dB below PEP, R3E 18 +/- 2 dB, J3E at
@@ -402,6 +406,16 @@ def designator_figures(ctx: AnalysisContext) -> FigureSet:
             details={"lower_hz": lo, "upper_hz": hi},
         )
         return out
+    tonal = _line_fraction(spec, ctx.noise_floor_psd, lo, hi)
+    if tonal >= TONAL_FRACTION:
+        out.measurements["necessary_bandwidth_hz"] = Measurement(
+            value=None,
+            unit="Hz",
+            note=f"{100 * tonal:.0f} % of the emission's power is in discrete lines (steady test tones): its "
+            "occupied bandwidth is the tones' spread, not the necessary bandwidth; record it with speech or keying",
+            details={"lower_hz": lo, "upper_hz": hi, "line_fraction": tonal},
+        )
+        return out
     carrier: CarrierLevel | None = None
     basis = "99 % occupied bandwidth (RR No. 1.153) taken as the necessary bandwidth"
     if mode in ("usb", "lsb"):
@@ -429,6 +443,22 @@ def designator_figures(ctx: AnalysisContext) -> FigureSet:
         },
     )
     return out
+
+
+def _line_fraction(spec: Spectrum, noise_psd: float, lo: float, hi: float) -> float:
+    """Fraction of the power in [lo, hi] held by discrete lines (find_peaks + line_power)."""
+    h = lobe_half_width_bins(spec) * spec.bin_hz
+    sel = (spec.freqs_hz >= lo - h) & (spec.freqs_hz <= hi + h)
+    total = float(np.sum(np.clip(spec.psd[sel] - noise_psd, 0.0, None))) * spec.bin_hz
+    if not total > 0:
+        return 0.0
+    peaks = find_peaks(spec, noise_psd, max_peaks=32, lo_hz=lo - h, hi_hz=hi + h)
+    lines = 0.0
+    for pk in peaks:
+        lp = line_power(spec, pk.frequency_hz, noise_psd, search_bins=1)
+        if lp.detected:
+            lines += lp.power
+    return min(1.0, lines / total)
 
 
 def _ssb_carrier_from_spectrum(ctx: AnalysisContext) -> tuple[CarrierLevel, str]:
