@@ -321,3 +321,18 @@ def test_unknown_format_option_is_usage_error(tmp_path: Path, capsys: pytest.Cap
     (tmp_path / "x.bin").write_bytes(bytes(8))
     status, out, err = _run(capsys, str(tmp_path / "x.bin"), "--format", "cf33")
     assert status == 4 and out == "" and "Traceback" not in err and len(err.strip().splitlines()) == 1
+
+
+@pytest.mark.parametrize("key", ["core:offset", "core:num_channels", "core:trailing_bytes"])
+@pytest.mark.parametrize("value", [float("inf"), float("nan"), -1, 2.5, "3"])
+def test_absurd_integer_fields(tmp_path: Path, capsys: pytest.CaptureFixture[str], key: str, value: Any) -> None:
+    meta = _sigmf(tmp_path)
+    _edit_meta(meta, lambda d: d["global"].__setitem__(key, value))
+    _assert_refused(capsys, str(meta), match=key)
+
+
+@pytest.mark.parametrize("value", [float("inf"), -5, 1.5])
+def test_absurd_sample_start(tmp_path: Path, capsys: pytest.CaptureFixture[str], value: Any) -> None:
+    meta = _sigmf(tmp_path)
+    _edit_meta(meta, lambda d: d["captures"][0].__setitem__("core:sample_start", value))
+    _assert_refused(capsys, str(meta), match="core:sample_start")

@@ -22,6 +22,7 @@ from __future__ import annotations
 import datetime as _dt
 import hashlib
 import json
+import math
 import tarfile
 from collections.abc import Iterable, Iterator, Mapping, Sequence
 from pathlib import Path
@@ -85,7 +86,13 @@ def sigmf_paths(path: str | Path) -> tuple[Path, Path]:
 # -- reading ---------------------------------------------------------------------------
 def _int_field(obj: Mapping[str, Any], key: str, default: int, path: Path, where: str) -> int:
     value = obj.get(key, default)
-    if isinstance(value, bool) or not isinstance(value, (int, float)) or value != int(value) or value < 0:
+    if (
+        isinstance(value, bool)
+        or not isinstance(value, (int, float))
+        or not math.isfinite(value)
+        or value != int(value)
+        or value < 0
+    ):
         raise FormatError(f"{where} {key} must be a whole number >= 0, not {value!r}", path)
     return int(value)
 
