@@ -536,6 +536,10 @@ def test_spec_dict_round_trip_and_validation() -> None:
         TwoTone(1000.0, 1000.0)
     with pytest.raises(ValueError, match="does not fit"):
         synthesize(SignalSpec(Am(0.5, Tone(5000.0)), sample_rate_hz=8000.0))
+    with pytest.raises(ValueError, match="beyond"):
+        synthesize(SignalSpec(Dsb(Tone(1000.0)), sample_rate_hz=8000.0,
+                              frequency=FrequencyPlan(carrier_offset_hz=3500.0)))
+    assert synthesize(SignalSpec(duration_s=0.0)).size == 0
 
 
 # -- audio test signals ------------------------------------------------------------------

@@ -278,6 +278,12 @@ def generate_blocks(spec: SignalSpec, block_size: int = DEFAULT_BLOCK_SIZE) -> I
     else:
         source = _AudioSource(mod.audio, fs, rng_audio)
         coeffs = envelope_coefficients(spec)
+        reach = abs(spec.frequency.carrier_offset_hz) + mod.audio.highest_hz
+        if reach >= fs / 2:
+            raise ValueError(
+                f"the signal reaches {reach:g} Hz from the capture centre, beyond "
+                f"sample_rate_hz/2 = {fs / 2:g} Hz; lower the offset or raise the rate"
+            )
 
     plan = spec.frequency
     walk = (
