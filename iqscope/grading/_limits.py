@@ -28,6 +28,7 @@ This module is pure data and parsing: verdicts are in ``_verdict.py``.
 from __future__ import annotations
 
 import difflib
+import functools
 import math
 import os
 import sys
@@ -232,6 +233,7 @@ def _preset_dir() -> Any:
     return resources.files("iqscope.grading").joinpath("presets")
 
 
+@functools.lru_cache(maxsize=1)
 def preset_names() -> tuple[str, ...]:
     """Names of the shipped presets, sorted."""
     names = [p.name[: -len(".toml")] for p in _preset_dir().iterdir() if p.name.endswith(".toml")]
@@ -242,6 +244,11 @@ def preset_text(name: str) -> str:
     """The TOML text of a shipped preset (comments included), for ``limits init``."""
     if name not in preset_names():
         raise LimitsError(_unknown_preset_message(name))
+    return _read_preset(name)
+
+
+@functools.lru_cache(maxsize=None)
+def _read_preset(name: str) -> str:
     return str(_preset_dir().joinpath(f"{name}.toml").read_text(encoding="utf-8"))
 
 

@@ -57,7 +57,9 @@ def render_plots(result: GradeResult) -> dict[str, bytes]:
         out["envelope"] = figure_png(_line_figure(a, env, "Envelope over time"))
     fr = a.traces.get("frequency")
     if fr is not None and np.ndim(fr.y) == 1 and np.size(fr.y) > 1:
-        out["frequency"] = figure_png(_line_figure(a, fr, "Frequency over time", band=fr.extra.get("sigma")))
+        out["frequency"] = figure_png(
+            _line_figure(a, fr, "Frequency over time", band=fr.extra.get("sigma"), relative=True)
+        )
     ad = a.traces.get("allan_deviation")
     if ad is not None and np.ndim(ad.y) == 1 and np.size(ad.y) > 1:
         out["allan"] = figure_png(_allan_figure(a, ad))
@@ -258,11 +260,18 @@ def _spectrogram_figure(a: Analysis, tr: Trace) -> Figure:
     return fig
 
 
-def _line_figure(a: Analysis, tr: Trace, what: str, band: Any = None) -> Figure:
+def _line_figure(a: Analysis, tr: Trace, what: str, band: Any = None, relative: bool = False) -> Figure:
+    """A curve over time; ``relative`` draws it about its median (named in the label)."""
     fig = Figure(figsize=_SIZE, layout="constrained")
     ax = fig.add_subplot()
     x = np.asarray(tr.x, dtype=float)
     y = np.asarray(tr.y, dtype=float)
+    y_label = tr.y_label
+    finite = y[np.isfinite(y)]
+    if relative and finite.size:
+        ref = float(np.median(finite))
+        y = y - ref
+        y_label = f"{tr.y_label} minus {ref:.3f}"
     peak = tr.extra.get("peak_dbfs")
     if peak is not None and np.shape(peak) == y.shape:
         ax.plot(x, np.asarray(peak, dtype=float), color=_MASK_COLOR, linewidth=0.8, label="peak")
@@ -275,7 +284,7 @@ def _line_figure(a: Analysis, tr: Trace, what: str, band: Any = None) -> Figure:
         ax.fill_between(x, y - s, y + s, color=_EDGE_COLOR, alpha=0.2, linewidth=0, label="1-sigma")
         ax.legend(loc="upper right", fontsize=7)
     ax.set_xlabel(tr.x_label)
-    ax.set_ylabel(tr.y_label)
+    ax.set_ylabel(y_label)
     ax.set_title(_title(a, what), fontsize=10)
     ax.grid(True, alpha=0.3)
     return fig
