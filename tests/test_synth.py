@@ -16,6 +16,8 @@ from pathlib import Path
 
 import numpy as np
 import pytest
+from hypothesis import given, settings
+from hypothesis import strategies as st
 import scipy.integrate
 import scipy.io.wavfile
 import scipy.signal
@@ -513,6 +515,17 @@ def test_block_size_does_not_change_samples() -> None:
             parts = [b for _, b in zip(range(3000), generate(spec, block_size=1))]
             assert np.array_equal(np.concatenate(parts), whole[:3000])
             continue
+        assert np.array_equal(np.concatenate(list(generate(spec, block_size=size))), whole)
+
+
+@settings(max_examples=10, deadline=None)
+@given(sizes=st.lists(st.integers(min_value=50, max_value=5000), min_size=1, max_size=3))
+def test_any_block_sizes_give_the_same_samples(sizes: list[int]) -> None:
+    """Property: whatever block size, the stream equals the one-shot signal (checked on
+    a short busy spec; the block size cycles through ``sizes``)."""
+    spec = replace(_busy_spec(), duration_s=0.3)
+    whole = synthesize(spec)
+    for size in sizes:
         assert np.array_equal(np.concatenate(list(generate(spec, block_size=size))), whole)
 
 
