@@ -38,6 +38,7 @@ from typing import Final
 import numpy as np
 import numpy.typing as npt
 from scipy.ndimage import maximum_filter1d
+from scipy.stats import gamma as _gamma
 
 from ._noise import (
     averaged_quantile_bias,
@@ -156,8 +157,9 @@ class BandPower:
 def local_floor(spectrum: Spectrum, center: int, half_width: int, global_floor: float) -> float:
     """Noise floor next to a lobe: lower quartile of ``_ANNULUS`` bins each side, bias corrected.
 
-    Returns the larger of that and ``global_floor`` (a line on a raised pedestal, e.g.
-    a carrier among speech sidebands, is judged against the pedestal).
+    Returns it when it is more than 3 of its own sigmas above ``global_floor`` (a line on
+    a raised pedestal, e.g. a carrier among speech sidebands, is judged against the
+    pedestal), else ``global_floor``.
     """
     psd = spectrum.psd
     n = psd.size
@@ -167,10 +169,18 @@ def local_floor(spectrum: Spectrum, center: int, half_width: int, global_floor: 
     if idx.size < 8:
         return global_floor
     k = spectrum_dof(spectrum)
-    est = float(np.quantile(psd[idx], 0.25)) / averaged_quantile_bias(k, 0.25)
+    bias = averaged_quantile_bias(k, 0.25)
+    est = float(np.quantile(psd[idx], 0.25)) / bias
     if not math.isfinite(global_floor):
         return est
-    return max(global_floor, est)
+    # Use the local estimate only when it is significantly (3 sigma) above the global
+    # one: taking the larger of two noisy estimates would bias the floor upwards.
+    rho = bin_correlation(spectrum.window, _nfft(spectrum), 16)
+    m_eq = max(idx.size / float(rho[0] + 2.0 * rho[1:].sum()), 1.0)
+    xq = bias * k
+    dens = float(_gamma.pdf(xq, k))
+    sig = math.sqrt(0.25 * 0.75 / m_eq) / (dens * xq) if dens > 0 else math.inf
+    return est if est > global_floor * (1.0 + 3.0 * sig) else global_floor
 
 
 def _noise_var(spectrum: Spectrum, m: int, floor: float, k: float) -> float:
