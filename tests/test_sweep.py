@@ -161,3 +161,24 @@ class TestSweepCommand:
         f1 = str(write_sigmf(tmp_path / "a", x, 48_000.0))
         f2 = str(write_sigmf(tmp_path / "b", x, 48_000.0))
         assert main(["sweep", f1, f2, "--drive", "1,2,3"]) == 4
+
+
+class TestRendering:
+    def test_text_and_png(self) -> None:
+        """The report renders the sweep (rich, injected console) and a PNG (Agg)."""
+        import io
+
+        from iqscope.report._sweep import render_sweep_png, sweep_renderable
+        from iqscope.report._theme import make_console
+
+        pts = [cubic_point(float(d)) for d in np.arange(-12.0, 8.01, 2.0)]
+        pts[0] = SweepPoint(**{**pts[0].__dict__, "opposite_sideband_db": 70.0, "opposite_sideband_limited": True})
+        data = analyse_sweep(pts, -40.0).to_json()
+        buf = io.StringIO()
+        console = make_console(buf, width=120, color_system=None)
+        console.print(sweep_renderable(data, ascii_only=True))
+        text = buf.getvalue()
+        assert "1 dB compression (per-tone output) at drive" in text
+        assert "IMD3 reaches -40 dB PEP at drive" in text
+        assert ">= 70.0" in text
+        assert render_sweep_png(data)["sweep"][:4] == b"\x89PNG"

@@ -73,6 +73,10 @@ class SweepPoint:
     imd5_dbc: float | None = None
     carrier_suppression_db: float | None = None
     opposite_sideband_db: float | None = None
+    carrier_limited: bool = False
+    """True when the carrier suppression is a noise-limited lower bound."""
+    opposite_sideband_limited: bool = False
+    """True when the opposite-sideband suppression is a noise-limited lower bound."""
 
     @property
     def im3_dbfs(self) -> float | None:
@@ -94,6 +98,8 @@ class SweepPoint:
             "imd5_dbc": _f(self.imd5_dbc),
             "carrier_suppression_db": _f(self.carrier_suppression_db),
             "opposite_sideband_suppression_db": _f(self.opposite_sideband_db),
+            "carrier_limited_by_noise": self.carrier_limited,
+            "opposite_sideband_limited_by_noise": self.opposite_sideband_limited,
         }
 
 
@@ -194,7 +200,14 @@ def point_from_analysis(drive_db: float, analysis: Analysis) -> SweepPoint:
         imd5_dbc=_value(m, "imd5_dbc"),
         carrier_suppression_db=_value(m, "carrier_suppression_db"),
         opposite_sideband_db=_value(m, "opposite_sideband_suppression_db"),
+        carrier_limited=_limited(m, "carrier_suppression_db"),
+        opposite_sideband_limited=_limited(m, "opposite_sideband_suppression_db"),
     )
+
+
+def _limited(m: Mapping[str, Measurement], key: str) -> bool:
+    meas = m.get(key)
+    return bool(meas is not None and meas.limited_by_noise)
 
 
 def _signal_power_dbfs(analysis: Analysis) -> float | None:

@@ -152,15 +152,14 @@ def sweep_renderable(data: Mapping[str, Any], *, ascii_only: bool = False) -> Re
         imd3p = _num(p.get("imd3_db_pep"))
         if p.get("imd3_limited_by_noise") and imd3 != "-":
             imd3, imd3p = f"{le} {imd3}", f"{le} {imd3p}"
-        table.add_row(
-            _num(p.get("drive_db")),
-            _num(out, digits=2),
-            _num(comp, digits=2),
-            imd3,
-            imd3p,
-            _num(p.get("carrier_suppression_db")),
-            _num(p.get("opposite_sideband_suppression_db")),
-        )
+        ge = ">=" if ascii_only else "\u2265"
+        cs = _num(p.get("carrier_suppression_db"))
+        if p.get("carrier_limited_by_noise") and cs != "-":
+            cs = f"{ge} {cs}"
+        osb = _num(p.get("opposite_sideband_suppression_db"))
+        if p.get("opposite_sideband_limited_by_noise") and osb != "-":
+            osb = f"{ge} {osb}"
+        table.add_row(_num(p.get("drive_db")), _num(out, digits=2), _num(comp, digits=2), imd3, imd3p, cs, osb)
     bullet = "-" if ascii_only else "\u2022"
     lines: list[RenderableType] = [table]
     kind = "per-tone output" if data.get("output_kind") == "tone" else "mean output"
@@ -231,10 +230,25 @@ def sweep_figure(data: Mapping[str, Any]) -> Figure:
     ax3 = fig.add_subplot(2, 1, 2)
     cs = col("carrier_suppression_db")
     os_ = col("opposite_sideband_suppression_db")
-    if any(math.isfinite(v) for v in cs):
-        ax3.plot(drive, cs, "o-", color="C2", label="carrier suppression (dB)")
-    if any(math.isfinite(v) for v in os_):
-        ax3.plot(drive, os_, "^-", color="C4", label="opposite sideband suppression (dB)")
+    for values, flag, marker, colour, name in (
+        (cs, "carrier_limited_by_noise", "o", "C2", "carrier suppression (dB)"),
+        (os_, "opposite_sideband_limited_by_noise", "^", "C4", "opposite sideband suppression (dB)"),
+    ):
+        if not any(math.isfinite(v) for v in values):
+            continue
+        ax3.plot(drive, values, "-", color=colour, label=name)
+        bound = [bool(p.get(flag)) for p in pts]
+        ax3.plot([d for d, b in zip(drive, bound) if not b], [v for v, b in zip(values, bound) if not b], marker, color=colour, linestyle="none")
+        if any(bound):
+            ax3.plot(
+                [d for d, b in zip(drive, bound) if b],
+                [v for v, b in zip(values, bound) if b],
+                marker,
+                markerfacecolor="none",
+                color=colour,
+                linestyle="none",
+                label=name.replace(" (dB)", ": noise-limited bound"),
+            )
     ax3.set_xlabel("drive (dB)")
     ax3.set_ylabel("suppression (dB)")
     ax3.grid(True, alpha=0.3)
