@@ -181,3 +181,25 @@ class TestProvider:
     def test_no_emission(self, rng: np.random.Generator) -> None:
         m = spur_figures(context(noise(rng), 0.0)).measurements["worst_spur_dbc"]
         assert m.value is None
+
+
+class TestInvariants:
+    """STYLE.md habit 5: every figure is finite or null on pure noise, empty and length-1
+    input, through the real pipeline."""
+
+    @pytest.mark.parametrize("n", [0, 1, 5000])
+    @pytest.mark.parametrize("mode", ["two-tone", "usb", "cw"])
+    def test_noise_empty_short(self, n: int, mode: str, rng: np.random.Generator) -> None:
+        import json
+
+        from iqscope.measure._context import AnalysisRequest
+        from iqscope.measure.pipeline import analyse
+
+        y = (rng.standard_normal(n) + 1j * rng.standard_normal(n)) * 1e-3
+        req = AnalysisRequest(mode=mode, carrier_hz=100.0 if mode != "cw" else None)
+        a = analyse(ArrayRecording(y, FS, CENTRE), req)
+        json.dumps(a.to_json(), allow_nan=False)
+        for key in ("worst_spur_dbc", "imd3_dbc", "necessary_bandwidth_hz"):
+            m = a.measurements.get(key)
+            if m is not None:
+                assert m.value is None or math.isfinite(m.value)

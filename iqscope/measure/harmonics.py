@@ -534,6 +534,10 @@ def _harmonic_row(
             step = attenuation_step_check(10.0 * math.log10(p), 10.0 * math.log10(p2), step_db)
         else:
             step = StepCheck(math.nan, "unclear", "harmonic not above the noise in both recordings")
+    if lo_off - hh <= 0.0 <= hi_off + hh:
+        note = (note + "; " if note else "") + (
+            "the harmonic lies on the receiver's DC line (capture centre): tune the receiver a few kHz off it"
+        )
     if not detected:
         note = (note + "; " if note else "") + "not above the noise: upper bound"
     return HarmonicRow(
