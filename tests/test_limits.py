@@ -172,3 +172,17 @@ def test_init_text_round_trips() -> None:
         again = parse_limits(preset_text(name), origin="copy.toml", default_name="copy")
         assert again.rules == load_limits(name).rules
         assert not again.preset and again.origin == "copy.toml"
+
+
+def test_combined_profiles_later_rules_replace_earlier() -> None:
+    from iqscope.grading import combine_profiles
+
+    both = combine_profiles([load_limits("home-built"), load_limits("beacon")])
+    assert both.name == "home-built + beacon" and both.preset
+    assert both.rule_for("drift_worst_window_hz", "cw").pass_bound.max == 1.0
+    assert both.rule_for("carrier_suppression_db", "dsb").pass_bound.min == 40.0
+    mine = parse_limits('[[rule]]\nmeasurement = "carrier_suppression_db"\npass = { min = 60.0 }\n', "m.toml", "m")
+    over = combine_profiles([load_limits("home-built"), mine])
+    # the later generic rule replaces the preset's mode-specific one
+    assert over.rule_for("carrier_suppression_db", "dsb").pass_bound.min == 60.0
+    assert over.origin == "m.toml"

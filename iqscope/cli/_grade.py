@@ -28,6 +28,7 @@ from ..errors import (
     InputError,
     IqscopeError,
     MeasurementError,
+    OutputError,
     UsageError,
 )
 
@@ -91,7 +92,13 @@ def register(subparsers: Any) -> None:
     s.add_argument("--drift-window", metavar="S", type=_seconds, default=120.0, help="window for the worst drift excursion, s (default 120)")
     s.add_argument("--calibration", metavar="FILE", help="calibration from 'iqscope calibrate' (power in dBm and W)")
     g = p.add_argument_group("limits and output")
-    g.add_argument("--limits", metavar="FILE|NAME", help="limits profile: a TOML file or a preset (iqscope limits list)")
+    g.add_argument(
+        "--limits",
+        metavar="FILE|NAME",
+        action="append",
+        help="limits profile: a TOML file or a preset (iqscope limits list); repeat to combine "
+        "(a later profile's rules replace an earlier one's for the same measurement)",
+    )
     g.add_argument("--json", action="store_true", help="print exactly one JSON object on stdout (docs/json.md)")
     g.add_argument("--report", metavar="FILE", help="write a self-contained HTML report (plots embedded)")
     g.add_argument("--plot", metavar="DIR", help="write PNG plots into DIR (created if missing)")
@@ -148,6 +155,8 @@ def _check_outputs(args: argparse.Namespace, stems: list[str]) -> None:
         folder = Path(args.plot)
         if folder.exists() and not folder.is_dir():
             raise UsageError(f"--plot needs a folder, but {folder} is a file")
+        if not folder.exists() and not folder.absolute().parent.is_dir():
+            raise OutputError("the folder to create the plot folder in does not exist", folder)
         if folder.is_dir():
             for stem in stems:
                 for name in PLOT_NAMES:
@@ -163,12 +172,12 @@ def _check_outputs(args: argparse.Namespace, stems: list[str]) -> None:
 
 def run(args: argparse.Namespace) -> int:
     """Grade every file; return the exit status."""
-    from ..grading import grade, load_limits
+    from ..grading import combine_profiles, grade, load_limits
     from ..io import open_recording
     from ..measure._context import AnalysisRequest
     from ..report._theme import make_console
 
-    limits = load_limits(args.limits) if args.limits else None
+    limits = combine_profiles([load_limits(spec) for spec in args.limits]) if args.limits else None
     stems = _stems(list(args.files))
     _check_outputs(args, stems)
     options: dict[str, Any] = {}
@@ -262,7 +271,10 @@ def _write_outputs(args: argparse.Namespace, results: list[Any], stems: list[str
         from ..io._atomic import atomic_write
 
         folder = Path(args.plot)
-        folder.mkdir(exist_ok=True)
+        try:
+            folder.mkdir(exist_ok=True)
+        except OSError as exc:
+            raise OutputError(f"cannot create the plot folder: {exc.strerror or exc}", folder) from exc
         for stem, pngs in zip(stems, images):
             for name, png in pngs.items():
                 target = folder / f"{stem}-{name}.png"

@@ -57,6 +57,7 @@ __all__ = [
     "parse_limits",
     "default_profile",
     "default_profile_name",
+    "combine_profiles",
 ]
 
 #: Schema identifier written at the top of every profile.
@@ -443,3 +444,28 @@ def _check_overlaps(rules: Sequence[Rule], where: str | None) -> None:
                     where,
                 )
             claimed[key] = r.index
+
+
+def combine_profiles(profiles: Sequence[LimitsProfile]) -> LimitsProfile:
+    """Several profiles as one (``grade --limits A --limits B``).
+
+    A later profile's rules for a measurement replace every earlier rule for that
+    measurement; the name is the names joined by ``" + "``.
+    """
+    if not profiles:
+        raise ValueError("combine_profiles needs at least one profile")
+    if len(profiles) == 1:
+        return profiles[0]
+    rules: list[Rule] = []
+    for p in profiles:
+        replaced = {r.measurement for r in p.rules}
+        rules = [r for r in rules if r.measurement not in replaced] + list(p.rules)
+    origins = [p.origin for p in profiles]
+    return LimitsProfile(
+        name=" + ".join(p.name for p in profiles),
+        description=" / ".join(p.description for p in profiles if p.description),
+        rules=tuple(rules),
+        source="; ".join(p.source for p in profiles if p.source),
+        path=", ".join(o for o in origins if o != "preset") or None,
+        preset=all(p.preset for p in profiles),
+    )

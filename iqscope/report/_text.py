@@ -166,9 +166,9 @@ def _limit_text(rule: Rule | None, ascii_only: bool, *, two_lines: bool = True) 
 def render_verdict_table(result: GradeResult, *, ascii_only: bool = False) -> Table:
     """Measurement, value ± uncertainty, limit, verdict: every measurement, graded or not."""
     table = Table(box=box.ASCII if ascii_only else box.SIMPLE_HEAD, pad_edge=False, expand=False)
-    table.add_column("measurement", no_wrap=False)
+    table.add_column("measurement", no_wrap=False, min_width=19)
     table.add_column("value", justify="right", no_wrap=True)
-    table.add_column("limit", no_wrap=True)
+    table.add_column("limit", no_wrap=False, min_width=12)
     table.add_column("verdict", no_wrap=True)
     shown: set[str] = set()
     for name, m in result.analysis.measurements.items():
