@@ -316,3 +316,23 @@ class TestAcceptanceGrade:
         assert m["imd3_db_pep"]["value"] == pytest.approx(db_pep, abs=0.5)
         assert m["imd3_db_pep"]["details"]["db_pep_from_tones"] == pytest.approx(dbc - 6.02, abs=0.5)
         assert out["signal"]["mode"] == "two-tone"
+
+
+class TestDsbTwoTone:
+    def test_tones_on_one_side_of_the_carrier(self, rng: np.random.Generator) -> None:
+        """DSB fed with two tones: four lines symmetric about the carrier, plus a carrier
+        leak. With the carrier known, the tone pair is taken on one side (spacing
+        f2 - f1, not 2 f1) and the IMD3 products are looked for at 2f1 - f2 and 2f2 - f1
+        of that pair (REFERENCES.md item 6 product frequencies)."""
+        n = 2 * 48_000
+        t = np.arange(n) / FS
+        fc = 5000.0
+        audio = np.cos(2 * np.pi * 700.37 * t) + np.cos(2 * np.pi * 1900.81 * t)
+        x = 0.05 * audio * np.exp(2j * np.pi * fc * t) + 0.002 * np.exp(2j * np.pi * fc * t)
+        y = cubic(x, -2.0) + noise(rng, n, NOISE_PSD, FS)
+        spec = welch_spectrum(y, FS)
+        res = measure_two_tone(spec, NOISE_PSD, carrier_offset_hz=fc)
+        assert (res.tones.f1_hz - fc) * (res.tones.f2_hz - fc) > 0  # same side
+        assert res.tones.spacing_hz == pytest.approx(1200.44, abs=0.5)
+        lo, hi = product_offsets_hz(res.tones.f1_hz, res.tones.f2_hz, 3)
+        assert {round(p.line.frequency_hz) for p in res.products if p.order == 3} == {round(lo), round(hi)}

@@ -202,11 +202,19 @@ class TwoToneResult:
         return max(cands, key=lambda p: p.level_dbc)
 
 
-def find_tone_pair(spectrum: Spectrum, noise_psd: float, max_imbalance_db: float = 20.0) -> TonePair:
+def find_tone_pair(
+    spectrum: Spectrum,
+    noise_psd: float,
+    max_imbalance_db: float = 20.0,
+    carrier_offset_hz: float | None = None,
+) -> TonePair:
     """Find the two test tones: the strongest line and the strongest other line.
 
     Lines are found by :func:`iqscope.dsp.find_peaks` (6 noise sigmas) and measured by
-    :func:`iqscope.dsp.line_power` (main-lobe integral, noise removed).
+    :func:`iqscope.dsp.line_power` (main-lobe integral, noise removed). When the carrier
+    is known, a line at the carrier is not a tone, and both tones are taken from the
+    side of the carrier that holds the strongest line: a DSB transmitter fed with two
+    tones shows them on both sides, and the test looks at one sideband.
 
     Raises
     ------
@@ -214,10 +222,16 @@ def find_tone_pair(spectrum: Spectrum, noise_psd: float, max_imbalance_db: float
         When fewer than two lines stand out of the noise, or the second is more than
         ``max_imbalance_db`` below the first (not a two-tone signal).
     """
-    peaks = find_peaks(spectrum, noise_psd, max_peaks=2)
+    peaks = find_peaks(spectrum, noise_psd, max_peaks=8)
+    if carrier_offset_hz is not None and peaks:
+        h = line_half_width_hz(spectrum)
+        peaks = [pk for pk in peaks if abs(pk.frequency_hz - carrier_offset_hz) > 2 * h]
+        if peaks:
+            side = 1.0 if peaks[0].frequency_hz > carrier_offset_hz else -1.0
+            peaks = [pk for pk in peaks if side * (pk.frequency_hz - carrier_offset_hz) > 0]
     if len(peaks) < 2:
         raise ValueError("fewer than two lines stand out of the noise: not a two-tone signal")
-    a, b = (line_power(spectrum, pk.frequency_hz, noise_psd, search_bins=1) for pk in peaks)
+    a, b = (line_power(spectrum, pk.frequency_hz, noise_psd, search_bins=1) for pk in peaks[:2])
     if not (a.detected and b.detected):
         raise ValueError("fewer than two lines stand out of the noise: not a two-tone signal")
     ratio_db = 10.0 * math.log10(max(a.power, b.power) / min(a.power, b.power))
@@ -273,7 +287,7 @@ def measure_two_tone(
     ----------
     .. [1] Krauss, Bostian & Raab 1980, p. 509 (PEP of n equal tones).
     """
-    tones = find_tone_pair(spectrum, noise_psd)
+    tones = find_tone_pair(spectrum, noise_psd, carrier_offset_hz=carrier_offset_hz)
     ref = tones.mean_tone_power
     h = line_half_width_hz(spectrum)
     nyq = spectrum.sample_rate_hz / 2.0
