@@ -242,3 +242,20 @@ def test_writer_fails_cleanly(tmp_path: Path) -> None:
     with pytest.raises(ValueError, match="no samples"):
         write_sigmf(tmp_path / "e", iter(()), 1000)
     assert list(tmp_path.iterdir()) == []
+
+
+def test_streaming_producer_may_fill_metadata_while_yielding(tmp_path: Path) -> None:
+    """extra_global and annotations are read after the last block (capture relies on it)."""
+    extra: dict[str, object] = {"iqscope:count": 0}
+    notes: list[Annotation] = []
+
+    def blocks():
+        for i in range(3):
+            extra["iqscope:count"] = i + 1
+            notes.append(Annotation(i * 10, 1, label=f"b{i}"))
+            yield np.zeros(10, np.complex64)
+
+    meta = write_sigmf(tmp_path / "s", blocks(), 1000, extra_global=extra, annotations=notes)
+    doc = json.loads(meta.read_text())
+    assert doc["global"]["iqscope:count"] == 3
+    assert [a["core:label"] for a in doc["annotations"]] == ["b0", "b1", "b2"]

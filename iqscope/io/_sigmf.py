@@ -477,6 +477,13 @@ def write_sigmf(
     Path
         The ``.sigmf-meta`` file.
 
+    Notes
+    -----
+    ``extra_global`` and ``annotations`` are read twice: once before any file is written
+    (to fail early on values JSON cannot carry) and again after the last block is drawn,
+    so a streaming producer may fill them in while it yields (live capture records its
+    overflow counts and overflow annotations that way).
+
     Raises
     ------
     OutputError
@@ -503,28 +510,32 @@ def write_sigmf(
     check_can_write(meta_path, force=force)
     check_can_write(data_path, force=force)
 
-    glob: dict[str, Any] = {
-        K_DATATYPE: fmt.name,
-        K_VERSION: SIGMF_SPEC,
-        K_SAMPLE_RATE: rate,
-        K_NUM_CHANNELS: 1,
-        K_SHA512: "",
-        K_RECORDER: f"iqscope {__version__}",
-    }
-    if description:
-        glob[K_DESCRIPTION] = description
-    for k, v in (extra_global or {}).items():
-        if k in (K_DATATYPE, K_SHA512, K_NUM_CHANNELS, K_SAMPLE_RATE):
-            raise ValueError(f"extra_global may not set {k}")
-        glob[k] = v
-    capture: dict[str, Any] = {K_SAMPLE_START: 0}
-    if center_frequency_hz is not None:
-        capture[K_FREQUENCY] = center_frequency_hz
-    if datetime is not None:
-        capture[K_DATETIME] = _iso_utc(datetime)
-    ann = sorted((_annotation_json(a) for a in annotations), key=lambda d: d[K_SAMPLE_START])
-    doc = {"global": glob, "captures": [capture], "annotations": ann}
-    _dump(doc)  # fail on unencodable metadata before any file is written
+    def make_doc(sha512: str) -> dict[str, Any]:
+        # built again after streaming: a caller may fill extra_global and annotations
+        # while the blocks are drawn (live capture counts overflows that way)
+        ann = sorted((_annotation_json(a) for a in annotations), key=lambda d: d[K_SAMPLE_START])
+        glob: dict[str, Any] = {
+            K_DATATYPE: fmt.name,
+            K_VERSION: SIGMF_SPEC,
+            K_SAMPLE_RATE: rate,
+            K_NUM_CHANNELS: 1,
+            K_SHA512: sha512,
+            K_RECORDER: f"iqscope {__version__}",
+        }
+        if description:
+            glob[K_DESCRIPTION] = description
+        for k, v in (extra_global or {}).items():
+            if k in (K_DATATYPE, K_SHA512, K_NUM_CHANNELS, K_SAMPLE_RATE):
+                raise ValueError(f"extra_global may not set {k}")
+            glob[k] = v
+        capture: dict[str, Any] = {K_SAMPLE_START: 0}
+        if center_frequency_hz is not None:
+            capture[K_FREQUENCY] = center_frequency_hz
+        if datetime is not None:
+            capture[K_DATETIME] = _iso_utc(datetime)
+        return {"global": glob, "captures": [capture], "annotations": ann}
+
+    _dump(make_doc(""))  # fail on unencodable metadata before any file is written
 
     sha = hashlib.sha512()
     n = 0
@@ -536,9 +547,8 @@ def write_sigmf(
             n += block.size
         if n == 0:
             raise ValueError("no samples to write")
-    glob[K_SHA512] = sha.hexdigest()
     try:
-        atomic_write_text(meta_path, _dump(doc), force=force)
+        atomic_write_text(meta_path, _dump(make_doc(sha.hexdigest())), force=force)
     except BaseException:
         data_path.unlink(missing_ok=True)  # the dataset we just wrote is useless alone
         raise
