@@ -9,10 +9,13 @@ frequency (which needs a known capture centre).
 Automatic classification (``--mode auto``), on the noise-subtracted spectrum ``s``:
 
 1. no line or band stands above the noise: no signal;
-2. the strongest line holds at least half the emission power: a carrier. Symmetric
-   sidebands about it above -40 dBc with a steady envelope make it AM, otherwise CW
-   (a keyed carrier's envelope sits near zero for a large fraction of the time);
-3. otherwise, the symmetry score ``sum_k s(f0 + k) s(f0 - k) / sum_k s(k)^2`` (the
+2. the strongest line holds at least 55 % of the emission power and has symmetric
+   sidebands about itself above -40 dBc with a steady envelope: AM (a keyed carrier's
+   envelope sits near zero for a large fraction of the time: CW);
+3. an emission symmetric about a centre away from its strongest line is DSB (score
+   >= 0.3 when one sideband dominates, an unbalanced modulator);
+   otherwise a line with 55 % of the power is a carrier: CW;
+4. otherwise, the symmetry score ``sum_k s(f0 + k) s(f0 - k) / sum_k s(k)^2`` (the
    autoconvolution of ``s`` at ``2 f0``, maximised over ``f0``) decides: >= 0.5 is DSB
    with its carrier at that centre, below is single sideband, which cannot be placed
    without ``--carrier`` or ``--tone`` (a :class:`~iqscope.errors.UsageError` says so).
@@ -74,6 +77,11 @@ _LINE_SEED_HZ: Final = 10_000.0
 _LINE_SEED_DB: Final = -40.0
 #: Symmetry score above which a carrier-less emission is DSB.
 _SYMMETRY_DSB: Final = 0.5
+#: ... and when one sideband holds most of the power (an unbalanced DSB: 2r/(1 + r^2)
+#: >= 0.3 for a power ratio r up to 6.5, i.e. 8 dB of imbalance).
+_SYMMETRY_UNBALANCED: Final = 0.3
+#: Fraction of the emission power in one line above which it is surely a carrier (CW).
+_CW_FRACTION: Final = 0.9
 #: Sideband power (dBc) above which a carrier with symmetric sidebands is AM.
 _AM_SIDEBAND_DBC: Final = -40.0
 #: Fraction of envelope blocks below 10 % of the median amplitude that marks keying (CW).
@@ -175,11 +183,14 @@ def _excess(spectrum: Spectrum, floor: float) -> npt.NDArray[np.float64]:
     return np.maximum(spectrum.psd - floor, 0.0)
 
 
-def symmetry_centre(s: npt.NDArray[np.float64], freqs: npt.NDArray[np.float64], bin_hz: float) -> tuple[float, float]:
+def symmetry_centre(
+    s: npt.NDArray[np.float64], freqs: npt.NDArray[np.float64], bin_hz: float, near: int = 5
+) -> tuple[float, float]:
     """Centre of symmetry of a non-negative spectrum ``s`` and its score in [0, 1].
 
     The autoconvolution ``c(u) = sum_k s(k) s(u - k)`` peaks at ``u = 2 f0`` for a spectrum
-    symmetric about ``f0``; the score is ``c(2 f0) / sum s^2`` (1 for perfect symmetry).
+    symmetric about ``f0``; pairs of bins less than ``2 near`` apart (one line's own
+    lobe) are left out. The score is ``c(2 f0) / sum s^2`` (1 for perfect symmetry).
     The peak is refined by a parabola through its three samples.
     """
     n = s.size
@@ -188,6 +199,11 @@ def symmetry_centre(s: npt.NDArray[np.float64], freqs: npt.NDArray[np.float64], 
     m = sp_fft.next_fast_len(2 * n)
     S = sp_fft.rfft(s, m)
     c = sp_fft.irfft(S * S, m)[: 2 * n - 1]
+    # Leave out pairs of bins within one lobe of each other: a single strong line is
+    # symmetric about itself and would otherwise outvote a weaker pair of sidebands.
+    for d in range(0, 2 * near + 1):
+        prod = s[: n - d] * s[d:]
+        c[d : d + 2 * (n - d) : 2] -= prod if d == 0 else 2.0 * prod
     e = float(np.dot(s, s))
     u = int(np.argmax(c))
     score = float(c[u] / e) if e > 0 else 0.0
@@ -430,7 +446,20 @@ def locate_signal(
         return info("dsb" if mirror_score >= _SYMMETRY_DSB else _ssb_side(s, spectrum, given), given, "given with --carrier", True)
 
     assert strongest is not None
-    if strongest.power >= _CARRIER_FRACTION * total:
+    frac = strongest.power / total if total > 0 else 1.0
+    if frac >= _CARRIER_FRACTION:
+        m = _am_or_cw(spectrum, s, strongest.frequency_hz, strongest.power, h, keyed_fraction)
+        if m == "am":  # a carrier with symmetric sidebands about itself
+            return info(m, strongest.frequency_hz, "strongest line (the carrier)", True)
+    if frac < _CW_FRACTION:
+        # An unbalanced DSB can hold most of its power in one sideband: test symmetry
+        # about a centre away from the strongest line first.
+        f0, how = _dsb_centre(spectrum, s, peaks, h)
+        if f0 is not None and abs(f0 - strongest.frequency_hz) > (h + 0.5) * spectrum.bin_hz:
+            score = _symmetry_about(s, spectrum, f0)
+            if score >= (_SYMMETRY_DSB if frac < _CARRIER_FRACTION else _SYMMETRY_UNBALANCED):
+                return info("dsb", f0, how, True)
+    if frac >= _CARRIER_FRACTION:
         m = _am_or_cw(spectrum, s, strongest.frequency_hz, strongest.power, h, keyed_fraction)
         return info(m, strongest.frequency_hz, "strongest line (the carrier)", True)
     f0, how = _dsb_centre(spectrum, s, peaks, h)
@@ -479,7 +508,7 @@ def _dsb_centre(
     spectrum: Spectrum, s: npt.NDArray[np.float64], peaks: list[Peak], h: int
 ) -> tuple[float | None, str]:
     """DSB carrier: centre of symmetry; with a pair of sideband lines, their mean."""
-    f0, score = symmetry_centre(s, spectrum.freqs_hz, spectrum.bin_hz)
+    f0, score = symmetry_centre(s, spectrum.freqs_hz, spectrum.bin_hz, near=h)
     if not math.isfinite(f0):
         return None, "no signal above the noise floor"
     # Refine with the strongest line and its mirror about the centre (a test tone).
