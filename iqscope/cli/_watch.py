@@ -131,7 +131,7 @@ def watch(
     block_s = args.block or choose_block_s(setup.plan.snr, rec.sample_rate_hz, 8 * MAX_AUTO_BLOCK_S)
     tracker = LineTracker(rec.sample_rate_hz, setup.plan, block_s=block_s, span_hz=args.span,
                           stable_hz=setup.stable_search_hz, stable_is_absolute=setup.stable_is_absolute,
-                          center_frequency_hz=rec.center_frequency_hz)
+                          center_frequency_hz=rec.center_frequency_hz, measure_carrier=True)
     carrier = setup.nominal_offset_hz
     pos = 0
     reason = "stopped"

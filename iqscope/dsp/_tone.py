@@ -210,6 +210,7 @@ def estimate_tones(
     iterations: int = 4,
     noise_power: float | None = None,
     window: Window = "rect",
+    noise_band_hz: float | None = None,
 ) -> list[ToneEstimate]:
     """Estimate several lines in one block, sharing one FFT.
 
@@ -237,6 +238,9 @@ def estimate_tones(
         Taper for the coarse search and the fine refinement. ``"rect"`` (default) is the
         maximum-likelihood estimator; ``"hann"`` resists strong neighbouring lines at
         about 2.4x the variance (its ``sigma_hz`` includes that factor).
+    noise_band_hz : float, optional
+        Estimate the noise only from bins within +/- this of 0 Hz (e.g. the flat part of
+        a decimated channel's passband). Default: the whole block.
 
     Returns
     -------
@@ -312,7 +316,7 @@ def estimate_tones(
         hann = np.sin(np.pi * (np.arange(n) + 0.5) / n) ** 2
         nspec = sp_fft.fft(data * hann)
         npow = (nspec.real**2 + nspec.imag**2) / (float(np.sum(hann**2)) * math.log(2.0))
-        keep = np.ones(n, dtype=bool)
+        keep = np.ones(n, dtype=bool) if noise_band_hz is None else np.abs(nat_f) <= noise_band_hz
         for k, *_ in picks:
             keep &= np.abs(_wrap_hz(nat_f - freqs[k], fs)) > 4.0 * fs / n
         noise_global = float(np.median(npow[keep] if keep.sum() >= 16 else npow))
