@@ -44,16 +44,16 @@ limits     home-built (default for dsb)
 overall  ✘ FAIL
 
 why
-  • carrier suppression: outside the warn limit
+  • carrier suppression: outside the warn limit (>= 30 dB)
 
 receiver and recording
-  • line at the capture centre, -52 dBc: may be the receiver's DC offset (a line
-    at the capture centre is often the receiver's own DC offset: retune the
-    receiver so the signal sits well away from the centre and record again)
+  • line at the capture centre, -52 dBc: may be the receiver's DC offset
 
 advice
   • carrier leak: trim the modulator balance (balance potentiometer and
     trimmer), check the diode matching and the carrier-oscillator drive level
+  • a line at the capture centre is often the receiver's own DC offset: retune
+    the receiver so the signal sits well away from the centre and record again
 
 Caution: figures include the receiver chain. Transmit only into a dummy load or
 an antenna you are licensed to use, with enough attenuation before the receiver

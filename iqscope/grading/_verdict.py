@@ -34,7 +34,7 @@ from typing import Any, Final, Literal
 from ..errors import EXIT_FAIL, EXIT_OK, EXIT_WARN
 from ..measure._analysis import Analysis
 from ..measure._result import Measurement
-from ._advice import INCONCLUSIVE_ADVICE, advice_for
+from ._advice import ARTEFACT_ADVICE, INCONCLUSIVE_ADVICE, advice_for
 from ._limits import Bound, LimitsProfile, Rule, default_profile
 
 __all__ = [
@@ -174,6 +174,16 @@ class GradeResult:
                     out.append(v.advice)
         return tuple(out)
 
+    @property
+    def receiver_advice(self) -> tuple[str, ...]:
+        """Distinct advice for the receiver artefacts found (one per kind)."""
+        out: list[str] = []
+        for art in self.analysis.artefacts:
+            text = ARTEFACT_ADVICE.get(art.kind, "")
+            if text and text not in out:
+                out.append(text)
+        return tuple(out)
+
     def to_json(self) -> dict[str, Any]:
         """The ``grade --json`` object (DESIGN.md section 4, contract), plus extra keys."""
         a = self.analysis.to_json()
@@ -193,6 +203,7 @@ class GradeResult:
             "artefacts": a.get("artefacts", []),
             "warnings": a.get("warnings", []),
             "advice": list(self.advice),
+            "receiver_advice": list(self.receiver_advice),
             "not_graded": list(self.skipped),
         }
 
@@ -348,9 +359,12 @@ def _judge(name: str, m: Measurement, rule: Rule, mode: str) -> Verdict:
         return Verdict(status=status, reason=reason, advice="" if status == "pass" else advice, **base)
     status, _ = _region_status(v, v, rule)
     marginal = _marginal(v, m.uncertainty, rule.pass_bound)
-    reason = {"pass": "within the pass limit", "warn": "outside pass, within warn", "fail": "outside the warn limit"}[
-        status
-    ]
+    unit = rule.unit or m.unit
+    reason = {
+        "pass": "within the pass limit",
+        "warn": f"outside the pass limit ({rule.pass_bound.describe(unit)}), within warn",
+        "fail": f"outside the warn limit ({rule.effective_warn.describe(unit)})",
+    }[status]
     if marginal:
         reason += "; within its uncertainty of the pass limit"
     return Verdict(

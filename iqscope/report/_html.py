@@ -14,7 +14,7 @@ from html import escape
 from typing import Final
 
 from .. import __version__
-from ..grading import ARTEFACT_ADVICE, GradeResult
+from ..grading import GradeResult
 from ._plots import PLOT_NAMES
 from ._text import SAFETY_POINTS, _limit_text, label
 from ._theme import verdict_label
@@ -152,16 +152,16 @@ def _notes(result: GradeResult) -> str:
         items = "".join(f"<li>{escape(label(v.measurement))}: {escape(v.reason)}</li>" for v in reasons)
         out.append(f"<h3>Why</h3><ul>{items}</ul>")
     a = result.analysis
-    receiver = []
-    for art in a.artefacts:
-        hint = ARTEFACT_ADVICE.get(art.kind, "")
-        receiver.append(art.note + (f" ({hint})" if hint and hint not in art.note else ""))
-    receiver.extend(a.warnings)
+    receiver: list[str] = []
+    for text in [art.note or art.kind for art in a.artefacts] + list(a.warnings):
+        if text not in receiver:
+            receiver.append(text)
     if receiver:
         items = "".join(f'<li class="receiver">{escape(t)}</li>' for t in receiver)
         out.append(f"<h3>Receiver and recording</h3><ul>{items}</ul>")
-    if result.advice:
-        items = "".join(f'<li class="advice">{escape(t)}</li>' for t in result.advice)
+    advice = list(result.advice) + list(result.receiver_advice)
+    if advice:
+        items = "".join(f'<li class="advice">{escape(t)}</li>' for t in advice)
         out.append(f"<h3>Advice</h3><ul>{items}</ul>")
     if result.skipped:
         items = "".join(f"<li>{escape(t)}</li>" for t in result.skipped)

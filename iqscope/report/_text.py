@@ -17,7 +17,7 @@ from rich.console import Console, Group, RenderableType
 from rich.table import Table
 from rich.text import Text
 
-from ..grading import ARTEFACT_ADVICE, GradeResult, LimitsProfile, Verdict
+from ..grading import GradeResult, LimitsProfile, Verdict
 from ..grading._limits import Rule
 from ._theme import is_ascii, verdict_label, verdict_style
 from ._units import (
@@ -225,17 +225,16 @@ def render_notes(result: GradeResult, *, ascii_only: bool = False) -> Renderable
         parts.append(_bullets([f"{label(v.measurement)}: {v.reason}" for v in reasons], "iqscope.note", bullet))
     a = result.analysis
     receiver: list[str] = []
-    for art in a.artefacts:
-        text = art.note or art.kind
-        hint = ARTEFACT_ADVICE.get(art.kind, "")
-        receiver.append(f"{text} ({hint})" if hint and hint not in text else text)
-    receiver.extend(a.warnings)
+    for text in [art.note or art.kind for art in a.artefacts] + list(a.warnings):
+        if text not in receiver:
+            receiver.append(text)
     if receiver:
         parts.append(Text("\nreceiver and recording", style="iqscope.label"))
         parts.append(_bullets(receiver, "iqscope.artefact", bullet))
-    if result.advice:
+    advice = list(result.advice) + list(result.receiver_advice)
+    if advice:
         parts.append(Text("\nadvice", style="iqscope.label"))
-        parts.append(_bullets(list(result.advice), "iqscope.advice", bullet))
+        parts.append(_bullets(advice, "iqscope.advice", bullet))
     if result.skipped:
         parts.append(Text("\nnot graded", style="iqscope.label"))
         parts.append(_bullets(list(result.skipped), "iqscope.muted", bullet))
