@@ -5,6 +5,8 @@ from __future__ import annotations
 import json
 
 import pytest
+from hypothesis import given, settings
+from hypothesis import strategies as st
 from grading_helpers import analysis_with, dsb_analysis
 
 from iqscope.errors import EXIT_FAIL, EXIT_OK, EXIT_WARN
@@ -214,3 +216,43 @@ def test_json_is_the_contract() -> None:
     assert isinstance(v["limit"], str) and ">= 40 dB" in v["limit"]
     assert doc["overall"] == "warn"
     assert doc["limits_profile"]["name"] == "home-built" and doc["limits_profile"]["default"] is True
+
+
+# -- property: a noise-limited verdict agrees with judging every value the bound allows --
+
+_num = st.integers(min_value=-60, max_value=60).map(float)
+
+
+@st.composite
+def _rules(draw):
+    kind = draw(st.sampled_from(["min", "max", "range"]))
+    a, b, c, d = sorted(draw(st.lists(_num, min_size=4, max_size=4)))
+    if kind == "min":
+        return "{ min = %s }" % c, "{ min = %s }" % a
+    if kind == "max":
+        return "{ max = %s }" % b, "{ max = %s }" % d
+    return "{ min = %s, max = %s }" % (b, c), "{ min = %s, max = %s }" % (a, d)
+
+
+@settings(max_examples=150, deadline=None)
+@given(rule=_rules(), value=_num, bound=st.sampled_from(["lower", "upper"]))
+def test_bound_verdict_matches_brute_force(rule, value, bound) -> None:
+    """Oracle: judge a dense grid of the values the bound allows one by one (closed-form
+    interval logic of the module docstring, checked by exhaustion)."""
+    profile = one_rule("x_db", rule[0], rule[1])
+    point_status = {}
+    grid = [value + k * 0.5 * (1 if bound == "lower" else -1) for k in range(0, 400)]
+    for x in grid:
+        a = analysis_with("dsb", {"x_db": Measurement(x, "dB", None)})
+        point_status[x] = grade(a, profile).overall
+    seen = set(point_status.values())
+    m = Measurement(value, "dB", None, limited_by_noise=True, bound=bound)
+    (v,) = grade(analysis_with("dsb", {"x_db": m}), profile).verdicts
+    if seen == {"pass"}:
+        assert v.status == "pass" and not v.inconclusive
+    elif seen == {"fail"}:
+        assert v.status == "fail" and not v.inconclusive
+    elif seen == {"warn"}:
+        assert v.status == "warn" and not v.inconclusive
+    else:
+        assert v.status == "warn" and v.inconclusive
