@@ -336,3 +336,31 @@ class TestDsbTwoTone:
         assert res.tones.spacing_hz == pytest.approx(1200.44, abs=0.5)
         lo, hi = product_offsets_hz(res.tones.f1_hz, res.tones.f2_hz, 3)
         assert {round(p.line.frequency_hz) for p in res.products if p.order == 3} == {round(lo), round(hi)}
+
+
+class TestUncertainty:
+    def test_stated_sigma_matches_scatter(self) -> None:
+        """Monte Carlo (150 seeded noise draws): the noise part of the stated 1-sigma of an
+        IMD3 product about 13 dB above the noise in its lobe, sqrt(sigma^2 - 0.05^2),
+        agrees with the observed scatter within 25 % (the standard error of a standard
+        deviation from 150 draws is about 6 %), and the mean error is within 3 standard
+        errors of zero (no bias from the noise subtraction)."""
+        from iqscope.dsp import averaged_spectrum
+        from iqscope.measure.imd import SYSTEMATIC_DB, level_sigma_db
+
+        n = 48_000
+        a, k, n0 = 0.1, 1.0, 1e-10
+        y0 = cubic(two_tone(a, F1, F2, n), k)
+        want = analytic_imd3_dbc(a, k)
+        rng = np.random.default_rng(7)
+        errs, sig = [], []
+        for _ in range(150):
+            y = y0 + noise(rng, n, n0, FS)
+            res = measure_two_tone(averaged_spectrum(y, 4096, FS, workers=1), n0)
+            p = next(p for p in res.products if p.order == 3 and p.side == "lower")
+            assert p.line.detected
+            errs.append(p.level_dbc - want)
+            sig.append(math.sqrt(level_sigma_db(p.line) ** 2 - SYSTEMATIC_DB**2))
+        e = np.array(errs)
+        assert float(np.mean(sig)) == pytest.approx(float(e.std(ddof=1)), rel=0.25)
+        assert abs(float(e.mean())) < 3 * float(e.std(ddof=1)) / math.sqrt(len(e))
