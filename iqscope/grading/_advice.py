@@ -29,6 +29,11 @@ ARTEFACT_ADVICE: Final[Mapping[str, str]] = {
     "other": "check the receiver chain before blaming the transmitter",
 }
 
+_DRIFT: Final = (
+    "frequency wanders: let the oscillator warm up, shield it from heat and draughts, regulate "
+    "its supply (and check with --reference that the drift is not the receiver's)"
+)
+
 _BY_MEASUREMENT: Final[Mapping[str, str]] = {
     "carrier_suppression_db": "carrier leak: trim the modulator balance (balance potentiometer "
     "and trimmer), check the diode matching and the carrier-oscillator drive level",
@@ -51,12 +56,9 @@ _BY_MEASUREMENT: Final[Mapping[str, str]] = {
     "screening",
     "clipped_fraction": ARTEFACT_ADVICE["clipping"],
     "peak_dbfs": "the signal is close to the receiver's full scale: add attenuation",
-    "drift_hz_per_min": "frequency wanders: let the oscillator warm up, shield it from heat and "
-    "draughts, regulate its supply",
-    "drift_peak_to_peak_hz": "frequency wanders: let the oscillator warm up, shield it from heat "
-    "and draughts, regulate its supply",
-    "drift_worst_window_hz": "frequency wanders within a transmission: let the oscillator warm "
-    "up, shield it from heat and draughts, regulate its supply",
+    "drift_hz_per_min": _DRIFT,
+    "drift_peak_to_peak_hz": _DRIFT,
+    "drift_worst_window_hz": _DRIFT,
 }
 
 _BY_MEASUREMENT_MODE: Final[Mapping[tuple[str, str], str]] = {
