@@ -341,6 +341,25 @@ def _run_provider(provider: FigureProvider, ctx: AnalysisContext) -> tuple[Figur
     return fs, time.perf_counter() - t0
 
 
+def _dedupe(arts: list[Artefact], tol_hz: float) -> list[Artefact]:
+    """Keep the first of several flags of one artefact (same kind, same place)."""
+    out: list[Artefact] = []
+    for a in arts:
+        dup = False
+        for b in out:
+            if a.kind != b.kind:
+                continue
+            if a.offset_hz is None and b.offset_hz is None:
+                dup = True
+            elif a.offset_hz is not None and b.offset_hz is not None and abs(a.offset_hz - b.offset_hz) <= tol_hz:
+                dup = True
+            if dup:
+                break
+        if not dup:
+            out.append(a)
+    return out
+
+
 def _ordered(meas: dict[str, Measurement]) -> dict[str, Measurement]:
     out = {k: meas[k] for k in MEASUREMENT_ORDER if k in meas}
     out.update({k: v for k, v in meas.items() if k not in out})
@@ -448,6 +467,7 @@ def analyse(
         traces.update(fset.traces)
         warnings.extend(w for w in fset.warnings if w not in warnings)
     _CACHE.pop(id(ctx), None)
+    artefacts = _dedupe(artefacts, 2.0 * spectrum.bin_hz)
     if layout.has_signal:
         markers.setdefault("band_lower", layout.lo_hz)
         markers.setdefault("band_upper", layout.hi_hz)
