@@ -166,8 +166,11 @@ def _check_outputs(args: argparse.Namespace, stems: list[str]) -> None:
 
         for f in args.files:
             target = annotated_meta_path(f)
-            if target is not None:
-                check_can_write(target, force=args.force)
+            if target is None:
+                raise UsageError(
+                    f"--annotate needs a SigMF recording given as .sigmf-meta or .sigmf-data; {f} is not"
+                )
+            check_can_write(target, force=args.force)
 
 
 def run(args: argparse.Namespace) -> int:
