@@ -203,3 +203,26 @@ class TestInvariants:
             m = a.measurements.get(key)
             if m is not None:
                 assert m.value is None or math.isfinite(m.value)
+
+
+class TestFalseAlarms:
+    def test_family_wise_rate(self) -> None:
+        """A clean carrier in white noise, 60 seeded draws: the search is designed for a 1 %
+        family-wise false-alarm probability (chi-square threshold with the lobe sum's
+        equivalent degrees of freedom 2 K n^2 / R_n, Percival and Walden 1993 section
+        6.17; Bonferroni over the searched lobes). At most 4 of 60 draws may report a
+        line (binomial, p = 0.01: P(X >= 5) < 4e-4)."""
+        from iqscope.dsp import noise_floor
+
+        rng = np.random.default_rng(3)
+        n = 48_000
+        t = np.arange(n) / FS
+        hits = 0
+        for _ in range(60):
+            y = 0.1 * np.exp(2j * np.pi * 1000.3 * t) + (rng.standard_normal(n) + 1j * rng.standard_normal(n)) * math.sqrt(
+                1e-10 * FS / 2
+            )
+            spec = averaged_spectrum(y, 4096, FS, workers=1)
+            res = find_spurs(spec, noise_floor(spec).psd, reference_power=0.01, necessary_band_hz=(950.0, 1050.0))
+            hits += bool(res.lines)
+        assert hits <= 4

@@ -37,7 +37,7 @@ import numpy as np
 from scipy import stats
 
 from ..dsp._lines import find_peaks, line_power, lobe_half_width_bins
-from ..dsp._noise import spectrum_dof
+from ..dsp._noise import spectrum_dof, sum_variance_factor
 from ..dsp._types import Spectrum
 from ._context import AnalysisContext, FigureSet
 from ._result import Artefact, Measurement, failed
@@ -130,7 +130,8 @@ def detection_threshold_factor(n_tests: int, dof: float, p_false_alarm: float = 
     """Threshold on (integrated noise estimate / its mean) for a family-wise false alarm.
 
     The noise integrated over a line's band is modelled as a scaled chi-square with
-    ``dof`` degrees of freedom (2 per independent bin and average); with ``n_tests``
+    ``dof`` degrees of freedom (equivalent: ``2 K n^2 / R_n`` for a sum of ``n``
+    correlated bins, Percival and Walden 1993 section 6.17); with ``n_tests``
     roughly independent places searched, the per-place probability is ``p / n_tests``
     (Bonferroni).
 
@@ -192,8 +193,11 @@ def find_spurs(
     h = line_half_width_hz(spectrum)
     n_int = 2 * lobe_half_width_bins(spectrum) + 1
     k = spectrum_dof(spectrum)
-    corr = max(1.0, spectrum.enbw_hz / b)
-    dof = 2.0 * k * n_int / corr
+    # Degrees of freedom of a lobe sum of n_int correlated bins: 2 K n^2 / R_n, with R_n
+    # the summed bin correlations of the window (variance of the sum in bin units).
+    nfft = int(getattr(spectrum, "nfft", 0) or spectrum.psd.size)
+    r_n = sum_variance_factor(spectrum.window, nfft, n_int)
+    dof = 2.0 * k * n_int**2 / max(r_n, 1.0)
     # Bins near the recording's edges see the anti-alias filter roll-off: skip them.
     nyq = spectrum.sample_rate_hz / 2.0
     inband = np.abs(f) < nyq - 2 * h
