@@ -204,3 +204,15 @@ def test_annotate_refuses_to_overwrite(tmp_path: Path) -> None:
     with pytest.raises(OutputError, match="already exists"):
         write_annotated_meta(result)
     write_annotated_meta(result, force=True)
+
+
+def test_plots_survive_silence_and_nan() -> None:
+    """A recording of digital silence (PSD all zero) or a PSD with NaN still draws."""
+    from dataclasses import replace
+
+    a = dsb_analysis(37.6)
+    assert a.spectrum is not None
+    for psd in (np.zeros_like(a.spectrum.psd), np.where(np.arange(a.spectrum.psd.size) % 7 == 0, np.nan, a.spectrum.psd)):
+        b = replace(a, spectrum=replace(a.spectrum, psd=psd), traces={})
+        pngs = render_plots(grade(b))
+        assert pngs["spectrum"].startswith(PNG_MAGIC)

@@ -81,7 +81,7 @@ def _view(a: Analysis, rule_widths: list[float]) -> tuple[float, float]:
     assert spec is not None
     carrier = a.signal.carrier_offset_hz
     if carrier is None or not math.isfinite(carrier):
-        carrier = float(spec.freqs_hz[int(np.argmax(spec.psd))])
+        carrier = float(spec.freqs_hz[int(np.argmax(np.nan_to_num(spec.psd, nan=0.0)))])
     reach = [abs(v - carrier) for k, v in a.markers.items() if math.isfinite(v) and k != "worst_spur"]
     reach += [w for w in rule_widths if math.isfinite(w)]
     half = 1.4 * max(reach) if reach else 0.0
@@ -118,7 +118,8 @@ def spectrum_figure(result: GradeResult) -> Figure:
     if np.count_nonzero(sel) < 2:
         sel = np.ones_like(f, dtype=bool)
     # Display only: power in one resolution bandwidth, so a line reads its power.
-    level = 10.0 * np.log10(np.maximum(spec.psd[sel] * spec.enbw_hz, 1e-30))
+    psd = np.nan_to_num(np.asarray(spec.psd[sel], dtype=float), nan=0.0, posinf=0.0, neginf=0.0)
+    level = 10.0 * np.log10(np.maximum(psd * spec.enbw_hz, 1e-30))
     x = (f[sel] - centre) / scale
     fig = Figure(figsize=_SIZE, layout="constrained")
     ax = fig.add_subplot()
