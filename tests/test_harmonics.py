@@ -243,3 +243,12 @@ class TestCommand:
     def test_one_file_is_a_usage_error(self, tmp_path: Path, rng: np.random.Generator) -> None:
         f = _write(tmp_path, "fund", _line_recording(rng, F1 - 5000, F1, 0.0), F1 - 5000)
         assert main(["harmonics", f]) == 4
+
+    def test_fundamental_named_twice(self, tmp_path: Path, rng: np.random.Generator, capsys: pytest.CaptureFixture[str]) -> None:
+        """--fundamental naming a file also given positionally (another spelling) counts once."""
+        f = _write(tmp_path, "fund", _line_recording(rng, F1 - 5000, F1, 0.0), F1 - 5000)
+        h2 = _write(tmp_path, "h2", _line_recording(rng, 2 * F1 - 5000, 2 * F1, -60.0), 2 * F1 - 5000)
+        other_spelling = str(Path(f).parent / "." / Path(f).name)
+        assert main(["harmonics", h2, other_spelling, "--fundamental", f, "--json"]) == EXIT_OK
+        out = json.loads(capsys.readouterr().out)
+        assert [h["n"] for h in out["harmonics"]] == [2]

@@ -81,9 +81,13 @@ def run(args: argparse.Namespace) -> int:
     """Measure every recording, build the table, print it, return the exit status."""
     from ..measure.harmonics import harmonics_table
 
-    files = list(args.files)
-    if args.fundamental and args.fundamental not in files:
-        files.insert(0, args.fundamental)
+    files: list[str] = []
+    seen: set[str] = set()
+    for f in ([args.fundamental] if args.fundamental else []) + list(args.files):
+        key = str(Path(f).resolve())
+        if key not in seen:  # the same file named twice (e.g. also as --fundamental)
+            seen.add(key)
+            files.append(f)
     if len(files) < 2:
         raise UsageError("give the fundamental's recording and at least one harmonic's recording")
     if args.plot:
@@ -93,7 +97,7 @@ def run(args: argparse.Namespace) -> int:
         check_can_write(Path(args.plot) / "harmonics.png", force=args.force)
     levels = {path: _levels(path, args) for path in files}
     if args.fundamental:
-        fund = levels[args.fundamental]
+        fund = levels[files[0]]
     else:
         fund = min(levels.values(), key=lambda lv: lv.center_frequency_hz)
     others = [lv for lv in levels.values() if lv is not fund]
