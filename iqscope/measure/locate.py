@@ -16,8 +16,9 @@ Automatic classification (``--mode auto``), on the noise-subtracted spectrum ``s
    >= 0.3 when one sideband dominates, an unbalanced modulator);
    otherwise a line with 55 % of the power is a carrier: CW;
 4. otherwise, the symmetry score ``sum_k s(f0 + k) s(f0 - k) / sum_k s(k)^2`` (the
-   autoconvolution of ``s`` at ``2 f0``, maximised over ``f0``) decides: >= 0.5 is DSB
-   with its carrier at that centre, below is single sideband, which cannot be placed
+   autoconvolution of ``s`` at ``2 f0``, maximised over ``f0``) decides: >= 0.5, with
+   the gap a DSB signal leaves beside its carrier (no audio below ~100 Hz), is DSB
+   with its carrier at that centre; anything else is single sideband, which cannot be placed
    without ``--carrier`` or ``--tone`` (a :class:`~iqscope.errors.UsageError` says so).
 
 A two-tone SSB test signal is symmetric about its midpoint and is classified as DSB;
@@ -80,6 +81,9 @@ _SYMMETRY_DSB: Final = 0.5
 #: ... and when one sideband holds most of the power (an unbalanced DSB: 2r/(1 + r^2)
 #: >= 0.3 for a power ratio r up to 6.5, i.e. 8 dB of imbalance).
 _SYMMETRY_UNBALANCED: Final = 0.3
+#: Width beside the carrier lobe that a DSB signal leaves nearly empty, Hz (speech audio
+#: starts at 200-300 Hz, common practice).
+_CENTRE_GAP_HZ: Final = 100.0
 #: Fraction of the emission power in one line above which it is surely a carrier (CW).
 _CW_FRACTION: Final = 0.9
 #: Sideband power (dBc) above which a carrier with symmetric sidebands is AM.
@@ -421,15 +425,21 @@ def locate_signal(
         if strongest is None:
             return info("none", None, "no test-tone line above the noise", True)
         f_line = strongest.frequency_hz
-        best: tuple[float, str, float] | None = None
+        cands: list[tuple[float, str, float]] = []
         for side, f0 in (("usb", f_line - tone_hz), ("lsb", f_line + tone_hz)):
             c = line_power(spectrum, f0, floor.psd, search_bins=2)
             mirror = line_power(spectrum, 2 * f0 - f_line, floor.psd, search_bins=2)
-            score = max(c.power if c.detected else 0.0, mirror.power if mirror.detected else 0.0)
-            if best is None or score > best[2]:
-                best = (f0, side, score)
-        assert best is not None
-        if best[2] <= 0:
+            # Lines 5 noise sigmas up (false alarm ~3e-7 each), scored in sigmas.
+            score = max(
+                c.power / c.noise_sigma if c.noise_sigma > 0 and c.power > 5 * c.noise_sigma else 0.0,
+                mirror.power / mirror.noise_sigma if mirror.noise_sigma > 0 and mirror.power > 5 * mirror.noise_sigma else 0.0,
+            )
+            cands.append((f0, side, score))
+        cands.sort(key=lambda c: c[2], reverse=True)
+        best = cands[0]
+        # The winner must stand 10 dB above the other side (leakage of the tone itself
+        # reaches both candidates equally).
+        if best[2] <= 0 or best[2] < 10.0 * cands[1][2]:
             raise UsageError(
                 "--tone alone cannot tell upper from lower sideband here (no residual carrier or "
                 "opposite sideband above the noise): add --mode usb or --mode lsb"
@@ -457,14 +467,16 @@ def locate_signal(
         f0, how = _dsb_centre(spectrum, s, peaks, h)
         if f0 is not None and abs(f0 - strongest.frequency_hz) > (h + 0.5) * spectrum.bin_hz:
             score = _symmetry_about(s, spectrum, f0)
-            if score >= (_SYMMETRY_DSB if frac < _CARRIER_FRACTION else _SYMMETRY_UNBALANCED):
+            if score >= (_SYMMETRY_DSB if frac < _CARRIER_FRACTION else _SYMMETRY_UNBALANCED) and _centre_gap(
+                s, spectrum, f0, h
+            ):
                 return info("dsb", f0, how, True)
     if frac >= _CARRIER_FRACTION:
         m = _am_or_cw(spectrum, s, strongest.frequency_hz, strongest.power, h, keyed_fraction)
         return info(m, strongest.frequency_hz, "strongest line (the carrier)", True)
     f0, how = _dsb_centre(spectrum, s, peaks, h)
     score = _symmetry_about(s, spectrum, f0) if f0 is not None else 0.0
-    if f0 is not None and score >= _SYMMETRY_DSB:
+    if f0 is not None and score >= _SYMMETRY_DSB and _centre_gap(s, spectrum, f0, h):
         return info("dsb", f0, how, True)
     raise UsageError(
         "the signal looks like single sideband (not symmetric about any carrier): add --carrier HZ "
@@ -481,6 +493,25 @@ def _symmetry_about(s: npt.NDArray[np.float64], spectrum: Spectrum, f0: float) -
     ok = (j >= 0) & (j < n)
     e = float(np.dot(s, s))
     return float(np.dot(s[ok], s[j[ok]]) / e) if e > 0 else 0.0
+
+
+def _centre_gap(s: npt.NDArray[np.float64], spectrum: Spectrum, f0: float, h: int) -> bool:
+    """True when the spectrum is nearly empty just beside ``f0`` (outside the carrier lobe).
+
+    A DSB signal's audio has no energy below ~100 Hz, so its two sidebands leave a gap
+    about the carrier; a flat single-sideband band is symmetric about its own middle
+    but has no gap there.
+    """
+    f = spectrum.freqs_hz
+    d = np.abs(f - f0)
+    gap = (h + 0.5) * spectrum.bin_hz
+    inner = (d > gap) & (d <= gap + _CENTRE_GAP_HZ)
+    near = (d <= 5000.0) & (s > 0)
+    if not inner.any() or not near.any():
+        return True
+    sn = s[near]
+    ref = float(np.dot(sn, sn) / sn.sum())  # power-weighted level of the emission
+    return float(s[inner].mean()) <= 0.1 * ref
 
 
 def _ssb_side(s: npt.NDArray[np.float64], spectrum: Spectrum, f0: float) -> str:
