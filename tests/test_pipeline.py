@@ -1,0 +1,143 @@
+"""The analysis pipeline: invariants, provider isolation, streaming, traces and markers.
+
+Invariant (scipy's ``test_windowfunc_basics`` habit, STYLE.md item 5): every measurement
+is finite or null-with-a-note on pure noise, empty input, length-1 input and an all-zero
+recording; the JSON form is strict JSON (no NaN). The closed-form truth for the
+end-to-end case is a DSB signal built here (carrier 37.6 dB below the sidebands, as in
+the design's JSON example).
+"""
+
+from __future__ import annotations
+
+import json
+import math
+
+import numpy as np
+import pytest
+
+from iqscope.io import ArrayRecording, Recording
+from iqscope.measure import PROVIDERS, AnalysisRequest, FigureSet, Measurement, analyse, plan_pass
+from iqscope.measure.pipeline import MAX_CHUNK, MEASUREMENT_ORDER
+
+FS = 48_000.0
+
+
+def _noise(rng: np.random.Generator, n: int, var: float) -> np.ndarray:
+    return np.sqrt(var / 2) * (rng.standard_normal(n) + 1j * rng.standard_normal(n))
+
+
+def dsb(rng: np.random.Generator, n: int) -> np.ndarray:
+    t = np.arange(n) / FS
+    a = 0.25
+    c = math.sqrt(2 * a * a / 10 ** (37.6 / 10))
+    x = a * np.exp(2j * np.pi * 4213.3 * t) + a * np.exp(2j * np.pi * 2208.1 * t + 1j) + c * np.exp(2j * np.pi * 3210.7 * t)
+    return x + _noise(rng, n, 1e-9)
+
+
+def _check_invariants(an) -> None:  # type: ignore[no-untyped-def]
+    for name, m in an.measurements.items():
+        assert isinstance(m, Measurement)
+        if m.value is None:
+            assert m.note, f"{name} is null without a note"
+        else:
+            assert math.isfinite(m.value), name
+        if m.uncertainty is not None:
+            assert math.isfinite(m.uncertainty) and m.uncertainty >= 0, name
+    json.dumps(an.to_json(), allow_nan=False)
+
+
+@pytest.mark.parametrize("kind", ["noise", "empty", "one", "fifteen", "zeros"])
+def test_invariants_on_degenerate_input(rng: np.random.Generator, kind: str) -> None:
+    data = {
+        "noise": _noise(rng, 1 << 16, 1e-6),
+        "empty": np.zeros(0, np.complex64),
+        "one": np.array([0.5 + 0.5j]),
+        "fifteen": np.full(15, 0.1 + 0j),
+        "zeros": np.zeros(1 << 14, np.complex64),
+    }[kind]
+    an = analyse(ArrayRecording(data, FS))
+    _check_invariants(an)
+    for key in ("noise_floor_dbfs_per_hz", "peak_dbfs", "clipped_fraction"):
+        assert key in an.measurements
+    if kind == "noise":
+        assert an.signal.mode == "none"
+        assert an.measurements["noise_floor_dbfs_per_hz"].value == pytest.approx(10 * math.log10(1e-6 / FS), abs=0.1)
+    if kind in ("empty", "one", "fifteen"):
+        assert an.measurements["noise_floor_dbfs_per_hz"].value is None
+
+
+def test_end_to_end_dsb(rng: np.random.Generator) -> None:
+    progress: list[tuple[int, int]] = []
+    n = 1 << 18
+    an = analyse(ArrayRecording(dsb(rng, n), FS, 7.1e6), AnalysisRequest(progress=lambda d, t: progress.append((d, t))))
+    _check_invariants(an)
+    assert an.signal.mode == "dsb"
+    assert an.measurements["carrier_suppression_db"].value == pytest.approx(37.6, abs=0.2)
+    # report order of the stable keys
+    keys = [k for k in an.measurements if k in MEASUREMENT_ORDER]
+    assert keys == sorted(keys, key=MEASUREMENT_ORDER.index)
+    # The single pass reports up to (n, n); providers that stream again may report after it.
+    first = progress[: progress.index((n, n)) + 1]
+    assert all(t == n for _, t in first)
+    assert all(b >= a for (a, _), (b, _) in zip(first, first[1:]))
+    for key in ("carrier", "obw_lower", "obw_upper", "bw26_lower", "bw26_upper", "sideband_lower", "sideband_upper"):
+        assert key in an.markers
+    env = an.traces["envelope"]
+    assert env.x.size == env.y.size and 100 <= env.x.size <= 4096
+    sg = an.traces["spectrogram"]
+    assert sg.y.ndim == 2 and sg.y.shape[1] == sg.x.size and sg.y.shape[0] == len(sg.extra["rows"])
+    assert sg.y.shape[0] <= 128 and sg.y.shape[1] <= 513
+    assert an.spectrum is not None and an.spectrum.bin_hz <= 6.25
+    j = an.to_json()
+    assert j["signal"]["carrier_frequency_hz"] == pytest.approx(7.1e6 + 3210.7, abs=0.05)
+
+
+def test_resolution_option(rng: np.random.Generator) -> None:
+    x = dsb(rng, 1 << 17)
+    an = analyse(ArrayRecording(x, FS), AnalysisRequest(resolution_hz=2.0))
+    assert an.spectrum is not None and an.spectrum.bin_hz <= 2.0
+    assert an.measurements["carrier_suppression_db"].value == pytest.approx(37.6, abs=0.3)
+
+
+def test_short_recording_warns() -> None:
+    p = plan_pass(FS, 20_000)
+    assert p.warnings and FS / p.nfft > 6.25
+    assert plan_pass(FS, 10 * FS).nfft >= FS / 6.25
+
+
+def test_failing_provider_does_not_sink_the_others(rng: np.random.Generator) -> None:
+    def broken(ctx):  # type: ignore[no-untyped-def]
+        raise RuntimeError("boom")
+
+    broken.provides = {"imd3_dbc": "dBc"}  # type: ignore[attr-defined]
+
+    def extra(ctx):  # type: ignore[no-untyped-def]
+        return FigureSet(measurements={"answer": Measurement(42.0, "1", note="fixed")})
+
+    an = analyse(ArrayRecording(dsb(rng, 1 << 16), FS), providers=[broken, *PROVIDERS[:6], extra])
+    assert an.measurements["imd3_dbc"].value is None
+    assert "boom" in an.measurements["imd3_dbc"].note
+    assert any("broken failed" in w for w in an.warnings)
+    assert an.measurements["answer"].value == 42.0
+    assert an.measurements["carrier_suppression_db"].value is not None
+
+
+class _Spy(Recording):
+    """Counts the largest read, to show the pipeline streams."""
+
+    def __init__(self, data: np.ndarray) -> None:
+        self._d = data.astype(np.complex64)
+        self.largest = 0
+        super().__init__(path=None, format="spy", datatype="cf32_le", sample_rate_hz=FS, n_samples=data.size)
+
+    def _read(self, start: int, count: int) -> np.ndarray:
+        self.largest = max(self.largest, count)
+        return self._d[start : start + count]
+
+
+def test_reads_in_bounded_chunks(rng: np.random.Generator) -> None:
+    n = 1 << 20
+    rec = _Spy(dsb(rng, n))
+    analyse(rec, providers=PROVIDERS[:6])
+    assert rec.largest <= MAX_CHUNK
+    assert rec.largest < n
