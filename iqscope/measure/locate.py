@@ -265,11 +265,42 @@ class Layout:
             m |= self.carrier_mask(spectrum)
         return m
 
+    def mirrored_mask(self, spectrum: Spectrum) -> npt.NDArray[np.bool_]:
+        """The artefact bins and their mirror images about the carrier.
+
+        Ratios of the two sides (sideband balance, opposite-sideband suppression, AM
+        index) leave out the same audio frequencies on both sides.
+        """
+        m = self.artefact_mask
+        if self.f0 is None or not m.any():
+            return m.copy()
+        n = m.size
+        c = (self.f0 - float(spectrum.freqs_hz[0])) / spectrum.bin_hz
+        idx = np.nonzero(m)[0]
+        j = np.rint(2 * c - idx).astype(np.int64)
+        out = m.copy()
+        ok = (j >= 0) & (j < n)
+        out[j[ok]] = True
+        return out
+
     def band(
-        self, spectrum: Spectrum, lo: float, hi: float, *, carrier: bool = True, random: bool | None = None
+        self,
+        spectrum: Spectrum,
+        lo: float,
+        hi: float,
+        *,
+        carrier: bool = True,
+        random: bool | None = None,
+        symmetric: bool = False,
     ) -> BandPower:
-        """Noise-subtracted power in [lo, hi] without artefacts (and without the carrier lobe)."""
+        """Noise-subtracted power in [lo, hi] without artefacts (and without the carrier lobe).
+
+        ``symmetric`` also leaves out the mirror images (about the carrier) of the artefact bins.
+        """
         rnd = (not self.lines_dominate) if random is None else random
+        ex = self.exclude(spectrum, carrier)
+        if symmetric:
+            ex |= self.mirrored_mask(spectrum)
         return band_power(
             spectrum,
             lo,
@@ -277,7 +308,7 @@ class Layout:
             self.floor.psd,
             floor_sigma_rel=self.floor.sigma_rel,
             random_signal=rnd,
-            exclude=self.exclude(spectrum, carrier),
+            exclude=ex,
         )
 
 

@@ -62,8 +62,8 @@ def modulation_figures(ctx: AnalysisContext) -> FigureSet:
         return out
     f0 = lay.f0
     ext = max(lay.hi_hz - f0, f0 - lay.lo_hz, lay.gap_hz)
-    bu = lay.band(spec, f0 + lay.gap_hz, f0 + ext)
-    bd = lay.band(spec, f0 - ext, f0 - lay.gap_hz)
+    bu = lay.band(spec, f0 + lay.gap_hz, f0 + ext, symmetric=True)
+    bd = lay.band(spec, f0 - ext, f0 - lay.gap_hz, symmetric=True)
     pu, pd = max(bu.power, 0.0), max(bd.power, 0.0)
     m = index_from_powers(pu, pd, car.power)
     details: dict[str, float | str | None] = {}

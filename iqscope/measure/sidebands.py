@@ -81,8 +81,8 @@ def sideband_figures(ctx: AnalysisContext) -> FigureSet:
         else:
             wlo, whi = min(lay.lo_hz, f0 - lay.gap_hz), f0 - lay.gap_hz
         mlo, mhi = 2 * f0 - whi, 2 * f0 - wlo
-        want_b = lay.band(spec, wlo, whi)
-        unw_b = lay.band(spec, mlo, mhi)
+        want_b = lay.band(spec, wlo, whi, symmetric=True)
+        unw_b = lay.band(spec, mlo, mhi, symmetric=True)
         img = _image_overlap_note(lay, wlo, whi)
         if not want_b.detected:
             out.measurements[name] = failed("dB", "wanted sideband not above the noise floor")
@@ -119,8 +119,8 @@ def sideband_figures(ctx: AnalysisContext) -> FigureSet:
             what = "upper over lower sideband line"
         else:
             ext = max(lay.hi_hz - f0, f0 - lay.lo_hz)
-            bu = lay.band(spec, f0 + lay.gap_hz, f0 + ext)
-            bd = lay.band(spec, f0 - ext, f0 - lay.gap_hz)
+            bu = lay.band(spec, f0 + lay.gap_hz, f0 + ext, symmetric=True)
+            bd = lay.band(spec, f0 - ext, f0 - lay.gap_hz, symmetric=True)
             pu, su, pd, sd = bu.power, bu.sigma, bd.power, bd.sigma
             det_u, det_d = bu.detected, bd.detected
             ub_u, ub_d = bu.upper_bound, bd.upper_bound
