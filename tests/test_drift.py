@@ -319,12 +319,16 @@ class TestTracker:
 
     def test_choose_block(self) -> None:
         # strong line at 48 kS/s: the shortest octave giving 0.02 Hz
-        # strong line: the 0.25-s floor (CRLB at 0.25 s is already < 0.02 Hz)
-        assert choose_block_s(100.0, 48_000.0, 3600.0) == 0.25
+        # strong line: the 1-s floor (the CRLB at 1 s is far below 0.02 Hz)
+        assert choose_block_s(100.0, 48_000.0, 3600.0) == 1.0
         # short recording: blocks of at most 1/8 of it
         assert choose_block_s(100.0, 48_000.0, 1.0) == 0.125
-        # weak line (-20 dB per sample): longer blocks
-        assert choose_block_s(0.01, 48_000.0, 3600.0) >= 0.5
+        # weak line (-30 dB per sample): CRLB 0.02 Hz needs T^3 >= 6/((2 pi)^2 1e-3 fs 4e-4),
+        # T >= 1.99 s -> 2 s (and SNR fs T = 96 >= 60)
+        assert choose_block_s(1e-3, 48_000.0, 3600.0) == 2.0
+        # too weak to reach SNR fs T >= 60 within 8-s blocks
+        with pytest.raises(MeasurementError):
+            choose_block_s(1e-4, 48_000.0, 3600.0)
         with pytest.raises(MeasurementError, match="too short"):
             choose_block_s(1e-6, 48_000.0, 2.0)
 

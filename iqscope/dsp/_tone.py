@@ -26,6 +26,7 @@ References
 
 from __future__ import annotations
 
+import functools
 import math
 from collections.abc import Sequence
 from dataclasses import dataclass
@@ -151,6 +152,29 @@ def _wrap_hz(f: npt.NDArray[np.float64] | float, fs: float) -> npt.NDArray[np.fl
     return np.asarray((np.asarray(f, dtype=np.float64) + fs / 2.0) % fs - fs / 2.0)
 
 
+@functools.lru_cache(maxsize=32)
+def _grid(
+    n: int, pad: int, fs: float
+) -> tuple[
+    npt.NDArray[np.float64], npt.NDArray[np.float64], npt.NDArray[np.float64], float, npt.NDArray[np.float64]
+]:
+    """Cached per-block-length arrays: padded bin frequencies (wrapped), centred time
+    index, Hann taper (symmetric about the block centre) and its sum of squares, and the
+    bin frequencies of the (FFT-friendly) noise periodogram.
+
+    FFT lengths are rounded up to 5-smooth sizes (``next_fast_len``): zero padding leaves
+    each bin's marginal distribution unchanged, which is all the median needs."""
+    nfft = sp_fft.next_fast_len(pad * n)
+    freqs = _wrap_hz(np.arange(nfft) * (fs / nfft), fs)
+    m = np.arange(n, dtype=np.float64) - (n - 1) / 2.0
+    hann = np.sin(np.pi * (np.arange(n) + 0.5) / n) ** 2
+    n_noise = sp_fft.next_fast_len(n)
+    nat_f = _wrap_hz(np.arange(n_noise) * (fs / n_noise), fs)
+    for a in (freqs, m, hann, nat_f):
+        a.flags.writeable = False
+    return freqs, m, hann, float(np.sum(hann * hann)), nat_f
+
+
 def _periodogram_derivs(
     x: npt.NDArray[np.complex128], m: npt.NDArray[np.float64], w: float
 ) -> tuple[complex, float, float]:
@@ -210,7 +234,7 @@ def estimate_tones(
     iterations: int = 4,
     noise_power: float | None = None,
     window: Window = "rect",
-    noise_band_hz: float | None = None,
+    noise_band_hz: tuple[float, float] | None = None,
 ) -> list[ToneEstimate]:
     """Estimate several lines in one block, sharing one FFT.
 
@@ -238,9 +262,9 @@ def estimate_tones(
         Taper for the coarse search and the fine refinement. ``"rect"`` (default) is the
         maximum-likelihood estimator; ``"hann"`` resists strong neighbouring lines at
         about 2.4x the variance (its ``sigma_hz`` includes that factor).
-    noise_band_hz : float, optional
-        Estimate the noise only from bins within +/- this of 0 Hz (e.g. the flat part of
-        a decimated channel's passband). Default: the whole block.
+    noise_band_hz : (float, float), optional
+        ``(centre, half_width)``: estimate the noise only from bins within this band
+        (e.g. the flat part of a decimated channel's passband). Default: the whole block.
 
     Returns
     -------
@@ -280,15 +304,14 @@ def estimate_tones(
         taper = None
         xw = data
     elif window == "hann":
-        taper = np.sin(np.pi * (np.arange(n) + 0.5) / n) ** 2  # symmetric about the centre
+        taper = _grid(n, pad, fs)[2]
         xw = data * taper
     else:
         raise ValueError(f"{window=} must be 'rect' or 'hann'")
-    nfft = pad * n
+    freqs, m, hann, hann_s2, nat_f = _grid(n, pad, fs)
+    nfft = freqs.size
     spec = sp_fft.fft(xw, nfft)
     power = spec.real**2 + spec.imag**2
-    freqs = _wrap_hz(np.arange(nfft) * (fs / nfft), fs)
-    m = np.arange(n, dtype=np.float64) - (n - 1) / 2.0
     gain = float(n if taper is None else taper.sum())  # coherent gain x N
 
     picks: list[tuple[int, float, float, float, int]] = []  # k, lo_w, hi_w, w_ref, n_searched
@@ -307,16 +330,17 @@ def estimate_tones(
             half = 2 * math.pi * (float(span) + fs / n) / fs
             lo_w, hi_w = w_ref - half, w_ref + half
         k = int(region[np.argmax(power[region])])
-        picks.append((k, lo_w, hi_w, w_ref, max(1, region.size // pad)))
+        picks.append((k, lo_w, hi_w, w_ref, max(1, (region.size * n) // nfft)))
 
     # Noise from a Hann-windowed unpadded periodogram (low leakage from strong lines):
     # for white noise E|X_k|^2 = sigma^2 sum(w^2) and |X_k|^2 is exponential, median ln 2.
-    nat_f = freqs[::pad]
     if noise_power is None:
-        hann = np.sin(np.pi * (np.arange(n) + 0.5) / n) ** 2
-        nspec = sp_fft.fft(data * hann)
-        npow = (nspec.real**2 + nspec.imag**2) / (float(np.sum(hann**2)) * math.log(2.0))
-        keep = np.ones(n, dtype=bool) if noise_band_hz is None else np.abs(nat_f) <= noise_band_hz
+        nspec = sp_fft.fft(data * hann, nat_f.size)
+        npow = (nspec.real**2 + nspec.imag**2) / (hann_s2 * math.log(2.0))
+        if noise_band_hz is None:
+            keep = np.ones(nat_f.size, dtype=bool)
+        else:
+            keep = np.abs(_wrap_hz(nat_f - noise_band_hz[0], fs)) <= noise_band_hz[1]
         for k, *_ in picks:
             keep &= np.abs(_wrap_hz(nat_f - freqs[k], fs)) > 4.0 * fs / n
         noise_global = float(np.median(npow[keep] if keep.sum() >= 16 else npow))

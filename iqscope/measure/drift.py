@@ -92,8 +92,9 @@ TARGET_SIGMA_HZ = 0.02
 #: Post-integration SNR (N * SNR, linear) a block must reach to follow the line reliably.
 MIN_BLOCK_SNR = 60.0
 #: Shortest automatic block, s (shorter blocks only when the recording is under 8 of these):
-#: drift needs no finer time resolution, and fewer blocks cost less per hour of recording.
-MIN_AUTO_BLOCK_S = 0.25
+#: drift needs no finer time resolution, and fewer blocks cost less per hour of recording
+#: (the per-block cost is mostly fixed once each line has its own decimated channel).
+MIN_AUTO_BLOCK_S = 1.0
 #: Fewest blocks a track must have to give figures.
 MIN_BLOCKS = 8
 #: Candidate block lengths, s (octaves, so ADEV taus are round numbers).
@@ -368,7 +369,7 @@ def choose_block_s(
 ) -> float:
     """Block length for the tracker from the line's per-sample SNR.
 
-    The shortest octave length (0.25 .. 8 s) whose Cramér–Rao 1-sigma,
+    The shortest octave length (1 .. 8 s) whose Cramér–Rao 1-sigma,
     ``sqrt(6 / ((2 pi)^2 SNR fs T^3))``, is at most ``target_sigma_hz`` and whose
     post-integration SNR ``SNR fs T`` reaches 60 (18 dB, well above the estimator's
     threshold), but no longer than a 1/8 of the recording (down to 1/128 s for short
@@ -530,14 +531,16 @@ class FrequencyTrack:
 
 
 class _Channel:
-    """One followed line's narrow channel: mixed to 0 Hz and CIC-decimated, per block.
+    """One followed line's narrow channel: a complex band-pass decimator, per block.
 
-    Each block is shifted by ``-mix_hz`` and low-pass filtered by a 4-stage
-    cascaded integrator-comb (CIC) decimator of ratio D (Hogenauer 1981), stateless
-    per block (the first 4 outputs, which would need earlier samples, are dropped). The
-    channel is ``+/- half_band_hz`` wide, at most 1/16 of the decimated rate, so the CIC
-    droop inside it is under 0.25 dB and the alias bands are attenuated by > 90 dB.
-    No decimation (D = 1) when it would be below 4.
+    The filter is a 4-stage boxcar (the impulse response of a CIC decimator, Hogenauer
+    1981) of ratio D, shifted to the channel centre ``mix_hz``: taps
+    ``g[j] = h[j] exp(-2j pi mix j / fs)``. It is applied as a polyphase matrix product
+    (one small complex GEMM per block), stateless per block (only outputs whose taps lie
+    inside the block). A tone at f comes out at ``f mod fs/D`` with gain ``|H(f - mix)|``.
+    The channel is ``+/- half_band_hz`` wide and the output rate is at least 16 times
+    that, so the droop inside it is under 0.25 dB and alias bands are attenuated by
+    more than 90 dB. No decimation (D = 1) when D would be below 4.
 
     References
     ----------
@@ -554,39 +557,65 @@ class _Channel:
         d = int(fs // (16.0 * self.half_band_hz))
         self.decim = d if d >= 4 else 1
         self.mix_hz = float(centre_hz) if self.decim > 1 else 0.0
-        self._phasor: npt.NDArray[np.complex128] | None = None
-        self._key: tuple[int, float] | None = None
+        self._taps: npt.NDArray[np.complex64] | None = None
+        if self.decim > 1:
+            h = np.ones(self.decim)
+            for _ in range(self.ORDER - 1):
+                h = np.convolve(h, np.ones(self.decim))
+            self._h = h / float(self.decim) ** self.ORDER
+            self._make_taps()
+
+    def _make_taps(self) -> None:
+        d = self.decim
+        q = -(-self._h.size // d)
+        hp = np.zeros(q * d)
+        hp[: self._h.size] = self._h
+        g = hp * np.exp(-2j * np.pi * (self.mix_hz / self.fs) * np.arange(q * d))
+        self._taps = np.ascontiguousarray(g.reshape(q, d).T).astype(np.complex64)  # (D, Q)
 
     @property
     def rate_hz(self) -> float:
         return self.fs / self.decim
 
+    def to_channel(self, f_hz: float) -> float:
+        """Where a frequency (Hz offset) appears in the channel's output."""
+        r = self.rate_hz
+        return (f_hz + r / 2) % r - r / 2 if self.decim > 1 else f_hz
+
+    def from_channel(self, f_out_hz: float) -> float:
+        """The input frequency near ``mix_hz`` that appears at ``f_out_hz``."""
+        if self.decim == 1:
+            return f_out_hz
+        r = self.rate_hz
+        d = f_out_hz - self.to_channel(self.mix_hz)
+        return self.mix_hz + (d + r / 2) % r - r / 2
+
     def follow(self, centre_hz: float) -> None:
         """Re-centre the channel when the line has moved more than a span from its centre."""
         if self.decim > 1 and abs(centre_hz - self.mix_hz) > self.span_hz:
             self.mix_hz = float(centre_hz)
+            self._make_taps()
 
-    def output(self, block: npt.NDArray[np.complex64]) -> npt.NDArray[np.complex128]:
+    def output(self, block: npt.NDArray[np.complex64]) -> npt.NDArray[np.complex64]:
         """The channel's samples for one block (at ``rate_hz``)."""
         if self.decim == 1:
-            return block.astype(np.complex128)
-        n = block.size
-        if self._key != (n, self.mix_hz):
-            self._phasor = np.exp(-2j * np.pi * (self.mix_hz / self.fs) * np.arange(n))
-            self._key = (n, self.mix_hz)
-        assert self._phasor is not None
-        y = block * self._phasor
-        for _ in range(self.ORDER):
-            np.cumsum(y, out=y)
-        y = y[self.decim - 1 :: self.decim]
-        y = np.diff(y, n=self.ORDER)
-        return y * (1.0 / float(self.decim) ** self.ORDER)
+            return block
+        assert self._taps is not None
+        d, q = self._taps.shape
+        k = block.size // d
+        if k <= q:
+            return np.zeros(0, np.complex64)
+        m = np.ascontiguousarray(block[: k * d], dtype=np.complex64).reshape(k, d) @ self._taps
+        out = m[: k - q + 1, 0].copy()
+        for j in range(1, q):
+            out += m[j : k - q + 1 + j, j]
+        return out
 
-    def response(self, f_rel_hz: float) -> float:
-        """Amplitude response of the CIC at ``f_rel_hz`` from the channel centre (1 at 0)."""
+    def response(self, f_hz: float) -> float:
+        """Amplitude response at input frequency ``f_hz`` (1 at the channel centre)."""
         if self.decim == 1:
             return 1.0
-        x = math.pi * f_rel_hz / self.fs
+        x = math.pi * (f_hz - self.mix_hz) / self.fs
         if abs(x) < 1e-12:
             return 1.0
         return abs(math.sin(self.decim * x) / (self.decim * math.sin(x))) ** self.ORDER
@@ -694,14 +723,17 @@ class LineTracker:
             if ch.decim == 1:
                 continue
             y = ch.output(block)
-            e = estimate_tones(y, ch.rate_hz, [centres[i] - ch.mix_hz], span_hz=self.span_hz,
-                               window=self.window, noise_band_hz=ch.half_band_hz)[0]
-            f_rel = e.frequency_hz
-            amp = e.amplitude / ch.response(f_rel)
+            if y.size < 8:
+                raise ValueError("block too short for the channel decimator")
+            e = estimate_tones(y, ch.rate_hz, [ch.to_channel(centres[i])], span_hz=self.span_hz,
+                               window=self.window,
+                               noise_band_hz=(ch.to_channel(ch.mix_hz), ch.half_band_hz))[0]
+            f_in = ch.from_channel(e.frequency_hz)
+            amp = e.amplitude / ch.response(f_in)
             # in-band noise PSD is the input's (CIC gain 1 near 0 Hz): the white-equivalent
             # variance per input sample is D times that per channel sample
             noise = e.noise_power * ch.decim
-            ests[i] = replace(e, frequency_hz=f_rel + ch.mix_hz, amplitude=amp, noise_power=noise,
+            ests[i] = replace(e, frequency_hz=f_in, amplitude=amp, noise_power=noise,
                               snr=amp * amp / noise, n_samples=block.size)
         for i, ch in enumerate(self._channels):
             e = ests[i]
