@@ -96,7 +96,7 @@ def watch(
         choose_block_s,
         drift_measurements,
         prepare_tracking,
-        survey_spectrum,
+        survey_at_start,
         watch_status,
     )
 
@@ -125,7 +125,7 @@ def watch(
             on_status(None, "waiting for data")
         sleep(args.poll)
     assert rec is not None
-    spec, noise = survey_spectrum(rec)
+    spec, noise, _ = survey_at_start(rec)
     setup = prepare_tracking(rec, spec, noise, mode=args.mode, carrier_hz=args.carrier, nominal_hz=args.carrier,
                              tone_hz=args.tone, line_hz=args.line, reference_hz=args.reference)
     block_s = args.block or choose_block_s(setup.plan.snr, rec.sample_rate_hz, 8 * MAX_AUTO_BLOCK_S)

@@ -63,6 +63,7 @@ __all__ = [
     "WatchStatus",
     "watch_status",
     "survey_spectrum",
+    "survey_at_start",
     "plan_lines",
     "choose_block_s",
     "default_span_hz",
@@ -167,14 +168,16 @@ def survey_spectrum(
     recording: Recording,
     *,
     resolution_hz: float = 2.0,
-    max_segments: int = 32,
+    max_segments: int = 16,
+    start: int = 0,
 ) -> tuple[Spectrum, float]:
-    """Averaged PSD of up to ``max_segments`` segments spread over the recording.
+    """Averaged PSD of up to ``max_segments`` consecutive segments from sample ``start``.
 
-    Used to choose the line(s) to follow and the block length when no analysis spectrum
-    is at hand (``iqscope drift`` and ``watch``). Blackman–Harris window (-92 dB
-    sidelobes, Harris 1978), PSD scaled as ``|X|^2 / (fs sum w^2)`` (Heinzel 2002,
-    two-sided). Reads at most ``max_segments * nfft`` samples.
+    Used to choose the line(s) to follow and the block length. The segments are taken
+    together near the start of tracking, not spread over the recording: a line that
+    drifts over an hour would be smeared into several peaks by a whole-recording
+    average. Blackman–Harris window (-92 dB sidelobes, Harris 1978), PSD scaled as
+    ``|X|^2 / (fs sum w^2)`` (Heinzel 2002, two-sided).
 
     Returns
     -------
@@ -183,7 +186,7 @@ def survey_spectrum(
         median of an average of K exponentials (``gammaincinv(K, 0.5) / K``).
     """
     fs = recording.sample_rate_hz
-    n_total = recording.n_samples
+    n_total = recording.n_samples - max(0, start)
     if n_total < 64:
         raise MeasurementError("the recording is too short to find a line (< 64 samples)", recording.path)
     nfft = 1 << max(6, math.ceil(math.log2(fs / resolution_hz)))
@@ -191,7 +194,7 @@ def survey_spectrum(
     while nfft > n_total and nfft > 64:
         nfft //= 2
     k = max(1, min(max_segments, n_total // nfft))
-    starts = np.linspace(0, n_total - nfft, k).astype(np.int64) if k > 1 else np.array([0])
+    starts = max(0, start) + np.arange(k, dtype=np.int64) * nfft
     win = windows.blackmanharris(nfft, sym=False)
     s2 = float(np.sum(win**2))
     acc = np.zeros(nfft)
@@ -215,6 +218,20 @@ def survey_spectrum(
     return spectrum, max(noise, 1e-300)
 
 
+def survey_at_start(recording: Recording, *, tries: int = 8) -> tuple[Spectrum, float, int]:
+    """A survey spectrum where the line is first seen: at the start of the recording, or
+    (key up at the start) at the first of ``tries`` evenly spaced places holding a line
+    10 dB above the noise. Returns (spectrum, noise PSD, start sample)."""
+    n = recording.n_samples
+    spec, noise = survey_spectrum(recording)
+    for i in range(1, tries):
+        if find_lines(spec.freqs_hz, spec.psd, noise, min_ratio_db=10.0, max_lines=1):
+            return spec, noise, int((i - 1) * n // tries)
+        start = int(i * n // tries)
+        spec, noise = survey_spectrum(recording, start=start)
+    return spec, noise, int((tries - 1) * n // tries)
+
+
 def _nearest(lines: Sequence[LinePeak], f: float, tol: float) -> LinePeak | None:
     near = [ln for ln in lines if abs(ln.frequency_hz - f) <= tol]
     return max(near, key=lambda ln: ln.power) if near else None
@@ -228,6 +245,7 @@ def plan_lines(
     carrier_offset_hz: float | None = None,
     tone_hz: float | None = None,
     line_hz: float | None = None,
+    hint_tol_hz: float = 5.0,
 ) -> LinePlan:
     """Choose the line(s) to follow from an averaged spectrum.
 
@@ -245,6 +263,10 @@ def plan_lines(
         SSB test tone's audio frequency, Hz.
     line_hz : float, optional
         Follow the line nearest this offset (overrides everything else).
+    hint_tol_hz : float
+        How far (Hz, at least 4 bins) a line may sit from where ``carrier_offset_hz`` and
+        ``tone_hz`` put it (wider when the hint comes from a whole-recording average of a
+        drifting signal).
 
     Raises
     ------
@@ -255,7 +277,7 @@ def plan_lines(
     lines = find_lines(spectrum.freqs_hz, spectrum.psd, noise_psd, min_ratio_db=10.0, max_lines=24)
     if not lines:
         raise MeasurementError("no discrete line stands 10 dB above the noise: nothing to track")
-    tol = max(4 * spectrum.bin_hz, 5.0)
+    tol = max(4 * spectrum.bin_hz, hint_tol_hz)
     mode = None if mode in (None, "auto") else mode
     strongest = lines[0]
     chosen: list[LinePeak]
@@ -274,8 +296,9 @@ def plan_lines(
         return None
 
     def equal_partner(ln0: LinePeak) -> LinePeak | None:
+        # within 3 dB and at least 100 Hz away (tone pairs are hundreds of Hz apart)
         for ln in lines[1:]:
-            if ln.power >= ln0.power / 2:  # within 3 dB
+            if ln.power >= ln0.power / 2 and abs(ln.frequency_hz - ln0.frequency_hz) >= 100.0:
                 return ln
         return None
 
@@ -290,9 +313,8 @@ def plan_lines(
             shift, kind = 0.0, "carrier"
     elif mode in ("cw", "am") or (mode is None and carrier_offset_hz is not None and
                                     _nearest(lines, carrier_offset_hz, tol) is not None):
-        ln = _nearest(lines, carrier_offset_hz, tol) if carrier_offset_hz is not None else strongest
-        if ln is None:
-            raise MeasurementError("no carrier line found where the carrier should be")
+        ln = _nearest(lines, carrier_offset_hz, tol) if carrier_offset_hz is not None else None
+        ln = ln or strongest  # CW/AM: the carrier is the strongest line anyway
         chosen, shift, kind = [ln], 0.0, "carrier"
         desc = f"the carrier at {ln.frequency_hz:.1f} Hz"
     elif mode in ("usb", "lsb"):
@@ -850,7 +872,7 @@ def track_frequency(
         plan = LinePlan(offs, 0.0, "line" if len(offs) == 1 else "line pair",
                         "the line(s) as given")
     if block_s is None or (not math.isfinite(plan.snr) and window is None):
-        spectrum, noise = survey_spectrum(recording)
+        spectrum, noise, _ = survey_at_start(recording)
         plan = _with_survey(plan, spectrum, noise)
     if block_s is None:
         block_s = choose_block_s(plan.snr, fs, recording.duration_s)
@@ -1370,6 +1392,7 @@ def prepare_tracking(
     line_hz: float | None = None,
     reference_hz: float | None = None,
     nominal_hz: float | None = None,
+    hint_tol_hz: float = 5.0,
 ) -> TrackingSetup:
     """Resolve the user's frequencies and choose the line(s) to follow.
 
@@ -1387,7 +1410,8 @@ def prepare_tracking(
     stable_abs = False
     if reference_hz is not None:
         stable, stable_abs = resolve_frequency(reference_hz, fs, cf, "--reference")
-    plan = plan_lines(spectrum, noise_psd, mode=mode, carrier_offset_hz=carrier, tone_hz=tone_hz, line_hz=line)
+    plan = plan_lines(spectrum, noise_psd, mode=mode, carrier_offset_hz=carrier, tone_hz=tone_hz, line_hz=line,
+                      hint_tol_hz=hint_tol_hz)
     plan = _with_survey(plan, spectrum, noise_psd)
     stable_search: float | None = None
     if stable is not None:
@@ -1422,19 +1446,21 @@ def analyse_drift(
     settle_band_hz: float = DEFAULT_SETTLE_BAND_HZ,
     progress: ProgressFn | None = None,
     spectrum: tuple[Spectrum, float] | None = None,
+    hint_tol_hz: float = 5.0,
 ) -> DriftResult:
     """Survey, plan, track and figure: what ``iqscope drift`` runs.
 
-    Frequencies as in :func:`prepare_tracking`; ``spectrum`` is an averaged spectrum and
-    its noise floor PSD when one is at hand (else a survey is made).
+    Frequencies as in :func:`prepare_tracking`; ``spectrum`` is an averaged spectrum of
+    the start of the recording and its noise floor PSD (default: :func:`survey_at_start`).
     """
     if block_s is not None and not (block_s > 0 and math.isfinite(block_s)):
         raise UsageError(f"--block {block_s!r} must be a positive number of seconds")
     if span_hz is not None and not (span_hz > 0 and math.isfinite(span_hz)):
         raise UsageError(f"--span {span_hz!r} must be a positive number of hertz")
-    spec, noise = spectrum if spectrum is not None else survey_spectrum(recording)
+    spec, noise = spectrum if spectrum is not None else survey_at_start(recording)[:2]
     setup = prepare_tracking(recording, spec, noise, mode=mode, carrier_hz=carrier_hz, tone_hz=tone_hz,
-                             line_hz=line_hz, reference_hz=reference_hz, nominal_hz=nominal_hz)
+                             line_hz=line_hz, reference_hz=reference_hz, nominal_hz=nominal_hz,
+                             hint_tol_hz=hint_tol_hz)
     plan = setup.plan
     if block_s is None:
         block_s = choose_block_s(plan.snr, recording.sample_rate_hz, recording.duration_s)
@@ -1463,7 +1489,9 @@ def drift_figures(ctx: AnalysisContext) -> FigureSet:
     req = ctx.request
     opts = req.options.get("drift", {}) if isinstance(req.options, Mapping) else {}
     try:
-        noise = ctx.noise_floor_psd if ctx.noise_floor_psd > 0 else survey_spectrum(rec)[1]
+        # The line positions come from a survey at the start of the recording (where
+        # tracking starts): the pipeline's whole-recording average smears a drifting line.
+        # Its mode and carrier place are hints, within 50 Hz.
         result = analyse_drift(
             rec,
             mode=ctx.signal.mode,
@@ -1477,7 +1505,7 @@ def drift_figures(ctx: AnalysisContext) -> FigureSet:
             window_s=req.drift_window_s,
             settle_band_hz=float(opts.get("settle_band_hz", DEFAULT_SETTLE_BAND_HZ)),
             progress=req.progress,
-            spectrum=(ctx.spectrum, noise),
+            hint_tol_hz=50.0,
         )
     except (MeasurementError, UsageError) as exc:
         out.warnings.append(f"drift not measured: {exc.message}")
