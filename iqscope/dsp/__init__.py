@@ -8,7 +8,7 @@ Spectra and windows
 Noise floor and lines
     :func:`noise_floor`, :class:`NoiseFloor`, :func:`averaged_quantile_bias`,
     :func:`line_power`, :func:`band_power`, :func:`find_peaks`, :class:`LinePower`,
-    :class:`BandPower`, :class:`Peak`.
+    :class:`BandPower`, :class:`Peak`, :func:`track_line`, :class:`LineTrack`.
 Envelope
     :func:`block_envelope`, :class:`EnvelopeExtremes`, :func:`envelope_modulation_index`.
 Levels, tones, stability (other modules)
@@ -23,12 +23,14 @@ from ._lines import (
     DETECTION_SIGMAS,
     BandPower,
     LinePower,
+    LineTrack,
     Peak,
     band_power,
     find_peaks,
     line_power,
     lobe_half_width_bins,
     local_floor,
+    track_line,
 )
 from ._noise import (
     NoiseFloor,
@@ -90,6 +92,8 @@ __all__ = [
     "line_power",
     "lobe_half_width_bins",
     "local_floor",
+    "LineTrack",
+    "track_line",
     "BlockEnvelope",
     "EnvelopeExtremes",
     "block_envelope",

@@ -62,6 +62,8 @@ __all__ = [
     "local_floor",
     "find_peaks",
     "bin_index",
+    "LineTrack",
+    "track_line",
 ]
 
 #: A line is detected when its noise-subtracted power exceeds this many noise-only sigmas
@@ -400,3 +402,82 @@ def find_peaks(
         f = float(np.dot(spectrum.freqs_hz[lo:hi], ex) / wsum) if wsum > 0 else float(spectrum.freqs_hz[i])
         out.append(Peak(frequency_hz=f, power=float(lobe[i]), index=i))
     return out
+
+
+@dataclass(frozen=True)
+class LineTrack:
+    """A line followed through consecutive block spectra."""
+
+    frequency_hz: npt.NDArray[np.float64]
+    """Lobe power centroid per block, Hz offset (NaN where not detected)."""
+    sigma_hz: npt.NDArray[np.float64]
+    """1-sigma of each frequency, Hz (NaN where not detected)."""
+    power: npt.NDArray[np.float64]
+    """Noise-subtracted lobe power per block, FS^2."""
+    detected: npt.NDArray[np.bool_]
+    """Line above ``DETECTION_SIGMAS`` noise sigmas in that block."""
+
+
+def track_line(
+    block_psd: npt.NDArray[np.floating],
+    spectrum: Spectrum,
+    freq_hz: float,
+    floor_psd: float,
+    counts: npt.NDArray[np.integer],
+    *,
+    search_bins: int = 3,
+    follow: bool = True,
+) -> LineTrack:
+    """Follow the line near ``freq_hz`` through block spectra (rows of ``block_psd``).
+
+    Each row is a PSD on the bins of ``spectrum`` averaged over ``counts[i]`` segments
+    (the pipeline's ``ctx.stats.block_psd``). In each row the lobe is centred on the
+    largest bin within ``search_bins`` of where the line was last seen (``follow``) or of
+    ``freq_hz``; its frequency is the lobe power centroid (exact for a sampled ``|W|^2``
+    kernel, see the module docstring) and its 1-sigma
+    ``sqrt(sum (f_i - f)^2 var_i) / W``, ``var_i = (2 s_i N0 + N0^2) / K`` with ``K`` the
+    row's equivalent averages (docs/measurements.md section 3).
+
+    Returns
+    -------
+    LineTrack
+    """
+    from ._spectrum import equivalent_averages
+
+    rows = np.asarray(block_psd, dtype=np.float64)
+    nr = rows.shape[0] if rows.ndim == 2 else 0
+    nan = np.full(nr, np.nan)
+    out_f, out_s, out_p = nan.copy(), nan.copy(), np.zeros(nr)
+    det = np.zeros(nr, bool)
+    if nr == 0 or rows.shape[1] != spectrum.psd.size or not math.isfinite(floor_psd):
+        return LineTrack(out_f, out_s, out_p, det)
+    h = lobe_half_width_bins(spectrum)
+    df = spectrum.bin_hz
+    f = spectrum.freqs_hz
+    n = f.size
+    nfft = _nfft(spectrum)
+    overlap = float(getattr(spectrum, "overlap", 0.5))
+    m = 2 * h + 1
+    r_m = sum_variance_factor(spectrum.window, nfft, m)
+    centre = bin_index(spectrum, freq_hz)
+    for i in range(nr):
+        k = max(equivalent_averages(int(counts[i]), spectrum.window, nfft, overlap), 1.0)
+        row = rows[i]
+        lo, hi = max(centre - search_bins, 0), min(centre + search_bins + 1, n)
+        c = lo + int(np.argmax(row[lo:hi]))
+        a, b = max(c - h, 0), min(c + h + 1, n)
+        ex = row[a:b] - floor_psd
+        p = float(ex.sum()) * df
+        out_p[i] = p
+        noise_sigma = floor_psd * df * math.sqrt(r_m / k)
+        if p > DETECTION_SIGMAS * noise_sigma and p > 0:
+            w = float(ex.sum())
+            fr = f[a:b]
+            fc = float(np.dot(fr, ex) / w)
+            var_i = (2.0 * np.maximum(ex, 0.0) * floor_psd + floor_psd**2) / k
+            out_f[i] = fc
+            out_s[i] = math.sqrt(float(np.sum((fr - fc) ** 2 * var_i))) / w
+            det[i] = True
+            if follow:
+                centre = c
+    return LineTrack(out_f, out_s, out_p, det)

@@ -118,6 +118,15 @@ class StreamStats:
     """Max |x|^2 per envelope block."""
     block_times_s: npt.NDArray[np.float64] = field(default_factory=lambda: np.zeros(0))
     """Centre time of each envelope block, s."""
+    block_psd: npt.NDArray[np.float32] = field(default_factory=lambda: np.zeros((0, 0), np.float32))
+    """Full-resolution PSD of consecutive blocks of the recording (rows x nfft, FS^2/Hz,
+    same bins as the spectrum), from the same FFTs: a provider can follow a line in time
+    with :func:`iqscope.dsp.track_line` without reading the file again. Empty when it
+    would not fit in 64 MB."""
+    block_psd_times_s: npt.NDArray[np.float64] = field(default_factory=lambda: np.zeros(0))
+    """Centre time of each ``block_psd`` row, s."""
+    block_psd_counts: npt.NDArray[np.int64] = field(default_factory=lambda: np.zeros(0, np.int64))
+    """Segments averaged in each ``block_psd`` row."""
 
     @property
     def keyed_fraction(self) -> float:

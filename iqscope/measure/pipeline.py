@@ -82,6 +82,10 @@ OVERLAP: Final = 0.5
 ENVELOPE_POINTS: Final = 2048
 #: Largest number of spectrogram rows and columns.
 SPECTROGRAM_ROWS: Final = 128
+#: Target number of full-resolution block spectra kept for providers (drift tracking
+#: without a second pass), within BLOCK_PSD_BYTES of memory (float32).
+BLOCK_ROWS: Final = 1024
+BLOCK_PSD_BYTES: Final = 64 << 20
 SPECTROGRAM_COLS: Final = 512
 #: Largest chunk read at once, samples (complex64: 32 MB).
 MAX_CHUNK: Final = 1 << 22
@@ -183,7 +187,8 @@ def plan_pass(sample_rate_hz: float, n_samples: int, resolution_hz: float | None
         nfft = new
     step = max(1, int(round(nfft * step_frac)))
     total_segments = max(1, (n_samples - nfft) // step + 1) if n_samples >= nfft else 1
-    per_row = max(1, math.ceil(total_segments / SPECTROGRAM_ROWS))
+    rows = max(SPECTROGRAM_ROWS, min(BLOCK_ROWS, BLOCK_PSD_BYTES // (4 * max(nfft, 1))))
+    per_row = max(1, math.ceil(total_segments / rows))
     chunk = per_row * step
     if chunk > MAX_CHUNK:
         chunk = max(step, (MAX_CHUNK // step) * step)
@@ -261,6 +266,9 @@ def _stream(
     env_count: list[npt.NDArray[np.int64]] = []
     rows: list[npt.NDArray[np.float64]] = []
     row_t: list[float] = []
+    full_rows: list[npt.NDArray[np.float32]] = []
+    row_counts: list[int] = []
+    keep_full = True
     done = 0
     for block in recording.chunks(plan.chunk):
         x = np.ascontiguousarray(block, dtype=np.complex64)
@@ -273,7 +281,13 @@ def _stream(
         part, cnt = acc.take_partial()
         if cnt:
             rows.append(_reduce_cols(part, SPECTROGRAM_COLS))
-            row_t.append((done + x.size / 2.0) / fs)
+            # Segments j0 .. j0+cnt-1 start at j*step: the row's centre time.
+            j0 = acc.n_averages - cnt
+            row_t.append(((j0 + (cnt - 1) / 2.0) * acc.step + acc.nfft / 2.0) / fs)
+            row_counts.append(cnt)
+            if keep_full:
+                full_rows.append(part.astype(np.float32))
+                keep_full = len(full_rows) * part.size * 4 < BLOCK_PSD_BYTES
         done += x.size
         if progress is not None:
             progress(done, n)
@@ -294,6 +308,9 @@ def _stream(
         block_mean_power=np.concatenate(env_mean) if env_mean else np.zeros(0),
         block_peak_power=np.concatenate(env_peak) if env_peak else np.zeros(0),
         block_times_s=np.asarray(times, dtype=np.float64),
+        block_psd=np.vstack(full_rows) if (full_rows and keep_full) else np.zeros((0, 0), np.float32),
+        block_psd_times_s=np.asarray(row_t, dtype=np.float64) if keep_full else np.zeros(0),
+        block_psd_counts=np.asarray(row_counts, dtype=np.int64) if keep_full else np.zeros(0, np.int64),
     )
     env_trace = None
     if stats.block_mean_power.size:
