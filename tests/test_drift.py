@@ -400,3 +400,86 @@ class TestProvider:
         out = drift_figures(_ctx(ArrayRecording(x, 4000.0), "cw", 100.0))
         assert out.measurements == {}
         assert out.warnings
+
+
+class TestCommandLine:
+    """``iqscope drift`` and the drift figures in ``iqscope grade --json``."""
+
+    @staticmethod
+    def _cw_file(tmp_path, seconds: float = 60.0, fs: float = 4000.0, rate: float = 2.71,
+                 centre: float | None = 7.04e6) -> tuple[str, np.ndarray]:
+        from iqscope.io import write_sigmf
+
+        t = np.arange(int(fs * seconds)) / fs
+        f = 611.3 + rate / 60 * t
+        write_sigmf(tmp_path / "cw", synth(f, fs), fs, center_frequency_hz=centre)
+        return str(tmp_path / "cw.sigmf-meta"), f
+
+    def test_drift_json(self, tmp_path, capsys) -> None:
+        import json
+
+        from iqscope.cli import main
+
+        path, f = self._cw_file(tmp_path)
+        assert main(["drift", path, "--json"]) == 0
+        doc = json.loads(capsys.readouterr().out)
+        assert doc["schema"] == "iqscope.drift/1"
+        m = doc["measurements"]
+        assert m["drift_hz_per_min"]["value"] == pytest.approx(2.71, abs=0.05)
+        assert m["frequency_offset_hz"]["value"] == pytest.approx(float(np.mean(f)), abs=0.05)
+        assert "frequency_error_hz" not in m
+        assert len(doc["track"]["time_s"]) == doc["tracking"]["n_used"]
+
+    def test_drift_text_and_plots(self, tmp_path, capsys) -> None:
+        from iqscope.cli import main
+
+        path, _ = self._cw_file(tmp_path)
+        out = tmp_path / "plots"
+        assert main(["drift", path, "--plot", str(out), "--carrier", "7040600"]) == 0
+        text = capsys.readouterr().out
+        assert "Drift rate" in text and "Error from nominal" in text
+        pngs = sorted(p.name for p in out.iterdir())
+        assert pngs == ["cw-drift-allan.png", "cw-drift-frequency.png"]
+        assert (out / "cw-drift-frequency.png").read_bytes()[:8] == b"\x89PNG\r\n\x1a\n"
+        # a second run refuses to overwrite without --force (exit 5, one line)
+        assert main(["drift", path, "--plot", str(out)]) == 5
+        err = capsys.readouterr().err
+        assert err.count("\n") == 1 and "--force" in err
+        assert main(["drift", path, "--plot", str(out), "--force", "-q"]) == 0
+
+    def test_drift_usage_errors(self, tmp_path, capsys) -> None:
+        from iqscope.cli import main
+
+        path, _ = self._cw_file(tmp_path, seconds=20.0, centre=None)
+        with pytest.raises(SystemExit) as exc:  # argparse: usage error, exit status 4
+            main(["drift", path, "--block", "-1"])
+        assert exc.value.code == 4
+        # an absolute reference frequency needs the capture centre
+        assert main(["drift", path, "--reference", "10e6"]) == 4
+        assert "centre" in capsys.readouterr().err
+
+    def test_drift_on_noise_is_a_measurement_error(self, tmp_path, capsys) -> None:
+        from iqscope.cli import main
+        from iqscope.io import write_sigmf
+
+        rng = np.random.default_rng(3)
+        x = (0.01 * (rng.standard_normal(80_000) + 1j * rng.standard_normal(80_000))).astype(np.complex64)
+        write_sigmf(tmp_path / "noise", x, 4000.0)
+        assert main(["drift", str(tmp_path / "noise.sigmf-meta")]) == 5
+        assert "nothing to track" in capsys.readouterr().err
+
+    def test_grade_json_acceptance(self, tmp_path, capsys) -> None:
+        """Issue 5 acceptance through ``grade --json``: a 5-minute CW recording drifting
+        3.137 Hz/min -> drift_hz_per_min within 0.1 Hz/min and drift_peak_to_peak_hz within
+        1 Hz of the closed form D (T_rec - T_block)."""
+        import json
+
+        from iqscope.cli import main
+
+        path, _ = self._cw_file(tmp_path, seconds=300.0, fs=2000.0, rate=3.137)
+        status = main(["grade", path, "--json"])
+        assert status in (0, 1, 2)
+        doc = json.loads(capsys.readouterr().out)
+        m = doc["measurements"]
+        assert m["drift_hz_per_min"]["value"] == pytest.approx(3.137, abs=0.1)
+        assert m["drift_peak_to_peak_hz"]["value"] == pytest.approx(3.137 / 60 * (300 - 1.0), abs=1.0)
