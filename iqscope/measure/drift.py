@@ -757,12 +757,10 @@ class LineTracker:
             noise = e.noise_power * ch.decim
             ests[i] = replace(e, frequency_hz=f_in, amplitude=amp, noise_power=noise,
                               snr=amp * amp / noise, n_samples=block.size)
-        for i, ch in enumerate(self._channels):
-            e = ests[i]
-            assert e is not None
-            if e.detected:
-                ch.follow(e.frequency_hz)
         done = [e for e in ests if e is not None]
+        for ch, est_i in zip(self._channels, done):
+            if est_i.detected:
+                ch.follow(est_i.frequency_hz)
         n_lines = len(self._centres)
         line_ests = tuple(done[:n_lines])
         stable = done[n_lines] if self._stable_centre is not None else None
@@ -1097,10 +1095,10 @@ def drift_measurements(
     if t.size < MIN_BLOCKS:
         why = (f"only {t.size} of {track.n_blocks} blocks had the line above the noise "
                f"(need {MIN_BLOCKS})")
-        ms = {nm: failed(u, f"not measured: {why}.") for nm, u in zip(names, units)}
+        nulls = {nm: failed(u, f"not measured: {why}.") for nm, u in zip(names, units)}
         if track.center_frequency_hz is not None:
-            ms["allan_deviation"] = failed("1", f"not measured: {why}.")
-        return DriftResult(track, ms, None, None, nominal, (why,), details)
+            nulls["allan_deviation"] = failed("1", f"not measured: {why}.")
+        return DriftResult(track, nulls, None, None, nominal, (why,), details)
 
     T = track.block_s
     sig_med = float(np.median(s))
@@ -1336,7 +1334,7 @@ def watch_status(tracker: LineTracker, nominal_offset_hz: float | None = None) -
     good = [b for b in blocks if b.valid and b.carrier_power is not None]
     if good:
         p_sb = float(np.mean([sum(e.amplitude**2 for e in b.lines) for b in good]))
-        p_c = float(np.mean([b.carrier_power for b in good]))  # type: ignore[misc]
+        p_c = float(np.mean([b.carrier_power or 0.0 for b in good]))
         noise = float(np.mean([b.lines[0].noise_power / b.lines[0].n_samples for b in good]))
         # the mean of K single-bin powers of noise has std noise / sqrt(K): 3 sigma above it
         floor = noise * (1.0 + 3.0 / math.sqrt(len(good)))
