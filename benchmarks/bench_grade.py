@@ -61,13 +61,24 @@ def make_file(n: int, fs: float) -> Path:
     return write_sigmf(base, blocks(), fs, center_frequency_hz=7.1e6, description="iqscope benchmark")
 
 
-def child_analyse(meta: str) -> None:
+def child_analyse(meta: str, core_only: bool = False) -> None:
     from iqscope.io import open_recording
-    from iqscope.measure import analyse
+    from iqscope.measure import PROVIDERS, analyse
+    from iqscope.measure import pipeline as pl
 
+    timings: dict[str, float] = {}
+    run = pl._run_provider
+
+    def timed(provider, ctx):  # type: ignore[no-untyped-def]
+        fs, dt = run(provider, ctx)
+        timings[getattr(provider, "__name__", "?")] = dt
+        return fs, dt
+
+    pl._run_provider = timed
+    providers = PROVIDERS[:6] if core_only else None
     t0 = time.perf_counter()
     with open_recording(meta) as rec:
-        an = analyse(rec)
+        an = analyse(rec, providers=providers)
     dt = time.perf_counter() - t0
     cs = an.measurements.get("carrier_suppression_db")
     print(
@@ -79,6 +90,7 @@ def child_analyse(meta: str) -> None:
                 "carrier_suppression_db": None if cs is None else cs.value,
                 "nfft": None if an.spectrum is None else an.spectrum.psd.size,
                 "n_averages": None if an.spectrum is None else an.spectrum.n_averages,
+                "slowest_provider": max(timings.items(), key=lambda kv: kv[1]) if timings else None,
             }
         )
     )
@@ -105,11 +117,11 @@ def main() -> None:
     ap.add_argument("--samples", type=int, default=64 * 2**20)
     ap.add_argument("--rate", type=float, default=48000.0)
     ap.add_argument("--keep", action="store_true", help="keep the recording for later runs")
-    ap.add_argument("--child", choices=["analyse", "welch"], help=argparse.SUPPRESS)
+    ap.add_argument("--child", choices=["analyse", "core", "welch"], help=argparse.SUPPRESS)
     ap.add_argument("--file", help=argparse.SUPPRESS)
     a = ap.parse_args()
-    if a.child == "analyse":
-        child_analyse(a.file)
+    if a.child in ("analyse", "core"):
+        child_analyse(a.file, core_only=a.child == "core")
         return
     if a.child == "welch":
         child_welch(a.file, a.rate)
@@ -124,12 +136,16 @@ def main() -> None:
         while fh.read(1 << 24):
             pass
     ours = run_child(["--child", "analyse", "--file", str(meta)])
+    core = run_child(["--child", "core", "--file", str(meta)])
     base = run_child(["--child", "welch", "--file", str(data), "--rate", str(a.rate)])
-    print(f"iqscope analyse : {ours['seconds']:.2f} s, peak RSS {ours['maxrss_mb']:.0f} MB "
+    slow = ours["slowest_provider"]
+    print(f"iqscope analyse, all providers : {ours['seconds']:.2f} s, peak RSS {ours['maxrss_mb']:.0f} MB "
           f"(mode {ours['mode']}, carrier suppression {ours['carrier_suppression_db']:.2f} dB, "
-          f"nfft {ours['nfft']}, {ours['n_averages']} averages)")
-    print(f"scipy welch     : {base['seconds']:.2f} s, peak RSS {base['maxrss_mb']:.0f} MB (nperseg 4096)")
-    print(f"ratio welch/analyse: {base['seconds'] / ours['seconds']:.1f}x")
+          f"nfft {ours['nfft']}, {ours['n_averages']} averages; slowest provider {slow[0]} {slow[1]:.2f} s)")
+    print(f"iqscope analyse, core providers: {core['seconds']:.2f} s, peak RSS {core['maxrss_mb']:.0f} MB")
+    print(f"scipy welch alone              : {base['seconds']:.2f} s, peak RSS {base['maxrss_mb']:.0f} MB (nperseg 4096)")
+    print(f"ratio welch / full analyse: {base['seconds'] / ours['seconds']:.1f}x; "
+          f"welch / core analyse: {base['seconds'] / core['seconds']:.1f}x")
     if not a.keep:
         for p in (meta, data):
             p.unlink(missing_ok=True)
