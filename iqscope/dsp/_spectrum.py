@@ -120,7 +120,7 @@ def equivalent_averages(n_averages: int, window: str, nfft: int, overlap: float)
     Examples
     --------
     >>> round(equivalent_averages(100, "hann", 1024, 0.5), 2)   # rho(1) = 0.1667
-    94.6
+    94.79
     """
     k = int(n_averages)
     if k <= 0:
@@ -302,7 +302,9 @@ def averaged_spectrum(
     acc = SpectrumAccumulator(nfft, sample_rate_hz, window=window, overlap=overlap, workers=workers)
     if isinstance(blocks, np.ndarray):
         acc.update(blocks)
-    else:
+    elif isinstance(blocks, Iterable):
         for b in blocks:
             acc.update(b)
+    else:
+        acc.update(np.asarray(blocks))
     return acc.result()

@@ -261,7 +261,7 @@ def _width_at(w: npt.NDArray[np.float64], level_db: float, lobe_end: float) -> f
     target = w0 * 10.0 ** (level_db / 20.0)
 
     def f(nu: float) -> float:
-        return _dtft_mag(w, nu) - target
+        return float(_dtft_mag(w, nu) - target)
 
     # |W| falls monotonically from 0 to the first null for every window here except the
     # flat-tops' ripple, which stays within 0.005 dB of the peak (far above -3 dB).
@@ -271,7 +271,8 @@ def _width_at(w: npt.NDArray[np.float64], level_db: float, lobe_end: float) -> f
     if idx.size == 0:
         return float("nan")
     i = int(idx[0])
-    return 2.0 * float(optimize.brentq(f, grid[i - 1], grid[i], xtol=1e-12))
+    root: float = float(optimize.brentq(f, grid[i - 1], grid[i], xtol=1e-12))
+    return 2.0 * root
 
 
 @lru_cache(maxsize=64)

@@ -504,20 +504,20 @@ def locate_signal(
     if frac < _CW_FRACTION:
         # An unbalanced DSB can hold most of its power in one sideband: test symmetry
         # about a centre away from the strongest line first.
-        f0, how = _dsb_centre(spectrum, s, peaks, h)
-        if f0 is not None and abs(f0 - strongest.frequency_hz) > (h + 0.5) * spectrum.bin_hz:
-            score = _symmetry_about(s, spectrum, f0)
-            if score >= (_SYMMETRY_DSB if frac < _CARRIER_FRACTION else _SYMMETRY_UNBALANCED) and _centre_gap(
-                s, spectrum, f0, h
+        fd, how_d = _dsb_centre(spectrum, s, peaks, h)
+        if fd is not None and abs(fd - strongest.frequency_hz) > (h + 0.5) * spectrum.bin_hz:
+            score_d = _symmetry_about(s, spectrum, fd)
+            if score_d >= (_SYMMETRY_DSB if frac < _CARRIER_FRACTION else _SYMMETRY_UNBALANCED) and _centre_gap(
+                s, spectrum, fd, h
             ):
-                return info("dsb", f0, how, True)
+                return info("dsb", fd, how_d, True)
     if frac >= _CARRIER_FRACTION:
         m = _am_or_cw(spectrum, s, strongest.frequency_hz, strongest.power, h, keyed_fraction)
         return info(m, strongest.frequency_hz, "strongest line (the carrier)", True)
-    f0, how = _dsb_centre(spectrum, s, peaks, h)
-    score = _symmetry_about(s, spectrum, f0) if f0 is not None else 0.0
-    if f0 is not None and score >= _SYMMETRY_DSB and _centre_gap(s, spectrum, f0, h):
-        return info("dsb", f0, how, True)
+    fc, how_c = _dsb_centre(spectrum, s, peaks, h)
+    score = _symmetry_about(s, spectrum, fc) if fc is not None else 0.0
+    if fc is not None and score >= _SYMMETRY_DSB and _centre_gap(s, spectrum, fc, h):
+        return info("dsb", fc, how_c, True)
     raise UsageError(
         "the signal looks like single sideband (not symmetric about any carrier): add --carrier HZ "
         "(offset from the capture centre, or absolute RF) or --tone HZ with --mode usb or --mode lsb"

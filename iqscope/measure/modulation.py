@@ -99,10 +99,10 @@ def modulation_figures(ctx: AnalysisContext) -> FigureSet:
     # sigma_m / m = 1/2 sqrt((sigma_Psb / Psb)^2 + (sigma_Pc / Pc)^2)
     psb = pu + pd
     s_sb = math.hypot(bu.sigma, bd.sigma)
-    sig = 0.5 * m * math.hypot(s_sb / psb, car.sigma / car.power) if psb > 0 else None
+    sig: float | None = 0.5 * m * math.hypot(s_sb / psb, car.sigma / car.power) if psb > 0 else None
     note = "from the lines: m = sqrt(2 (P_usb + P_lsb) / P_c); envelope (trapezoid) index and peaks in details"
-    m_env = details.get("index_envelope")
-    if isinstance(m_env, float) and m_env > 1.0:
+    m_env_any = details.get("index_envelope")
+    if isinstance(m_env_any, float) and m_env_any > 1.0:
         note += "; the envelope reaches zero: over-modulation"
     out.measurements[name] = Measurement(value=m, unit="1", uncertainty=sig, note=note, details=details)
     return out

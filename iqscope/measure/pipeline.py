@@ -246,9 +246,9 @@ def _reduce_cols(row: npt.NDArray[np.float64], cols: int) -> npt.NDArray[np.floa
     n = row.size
     g = max(1, math.ceil(n / cols))
     m = (n // g) * g
-    out = row[:m].reshape(-1, g).mean(axis=1)
+    out: npt.NDArray[np.float64] = np.asarray(row[:m].reshape(-1, g).mean(axis=1), dtype=np.float64)
     if m < n:
-        out = np.concatenate((out, [row[m:].mean()]))
+        out = np.concatenate((out, [float(row[m:].mean())]))
     return out
 
 
@@ -378,7 +378,7 @@ def _dedupe(arts: list[Artefact], tol_hz: float) -> list[Artefact]:
 
 
 def _ordered(meas: dict[str, Measurement]) -> dict[str, Measurement]:
-    out = {k: meas[k] for k in MEASUREMENT_ORDER if k in meas}
+    out: dict[str, Measurement] = {k: meas[k] for k in MEASUREMENT_ORDER if k in meas}
     out.update({k: v for k, v in meas.items() if k not in out})
     return out
 

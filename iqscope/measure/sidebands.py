@@ -67,9 +67,9 @@ def sideband_figures(ctx: AnalysisContext) -> FigureSet:
                     note=f"test-tone line over its mirror line about the carrier{img}",
                 )
             else:
-                v = 10 * math.log10(want.power / unw.upper_bound) if unw.upper_bound > 0 else None
+                vb = 10 * math.log10(want.power / unw.upper_bound) if unw.upper_bound > 0 else None
                 out.measurements[name] = Measurement(
-                    value=v, unit="dB", limited_by_noise=True, bound="lower",
+                    value=vb, unit="dB", limited_by_noise=True, bound="lower",
                     note=f"mirror line not detectable above the noise: the value is the bound the noise allows{img}",
                 )
             return out
