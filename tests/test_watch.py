@@ -57,11 +57,22 @@ class Writer(threading.Thread):
         x = x + 0.01 * (rng.standard_normal(CHUNK) + 1j * rng.standard_normal(CHUNK))
         return x.astype(np.complex64)
 
+    ci16 = False
+    """Write 16-bit integer I/Q (a WAV recorder) instead of cf32."""
+
+    def encode(self, x: np.ndarray) -> bytes:
+        if not self.ci16:
+            return x.tobytes()
+        inter = np.empty(2 * x.size, np.int16)
+        inter[0::2] = np.round(x.real * 32767)
+        inter[1::2] = np.round(x.imag * 32767)
+        return inter.tobytes()
+
     def run(self) -> None:
         rng = np.random.default_rng(7)
         for i in range(self.n_chunks):
             with open(self.path, "ab") as fh:
-                fh.write(self.chunk(i, rng).tobytes())
+                fh.write(self.encode(self.chunk(i, rng)))
             self.written += CHUNK
             time.sleep(self.pause_s)
 
@@ -116,6 +127,35 @@ def test_watch_sigmf_dataset_growing(tmp_path: Path) -> None:
     assert [s.n_blocks for s in statuses] == sorted(s.n_blocks for s in statuses)
     assert statuses[-1].drift_hz_per_min == pytest.approx(1.9, abs=0.1)
     assert "allan_deviation" in out.result.measurements  # centre frequency known
+
+
+def test_watch_wav_growing(tmp_path: Path) -> None:
+    """A WAV recorder that writes 0xFFFFFFFF as the data size while recording (RIFF sizes
+    patched the same way; the reader reads what the file holds) and appends 16-bit I/Q."""
+    import struct
+
+    from iqscope.io import write_wav
+
+    path = tmp_path / "rec.wav"
+    w = Writer(path, 24)
+    w.ci16 = True
+    write_wav(path, w.chunk(0, np.random.default_rng(7)), FS, bits=16)
+    head = path.read_bytes()[:64]
+    pos = head.index(b"data")
+    with open(path, "r+b") as fh:
+        fh.seek(4)
+        fh.write(struct.pack("<I", 0xFFFFFFFF))
+        fh.seek(pos + 4)
+        fh.write(struct.pack("<I", 0xFFFFFFFF))
+    orig = w.chunk
+    w.chunk = lambda i, r: orig(i + 1, r)  # type: ignore[method-assign]
+    w.written = CHUNK
+    w.start()
+    out = watch(_args(path, format=None, rate=None))
+    w.join()
+    tr = out.result.track
+    assert tr.n_blocks == w.written // round(tr.block_s * FS)
+    assert out.result.measurements["drift_hz_per_min"].value == pytest.approx(1.9, abs=0.15)
 
 
 def test_watch_dsb_carrier_suppression(tmp_path: Path) -> None:
