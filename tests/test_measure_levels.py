@@ -61,3 +61,22 @@ def test_clipping_artefact_none_without_clipping() -> None:
     assert clipping_artefact(0, 100, 1.0) is None
     a = clipping_artefact(5, 100, 1.0)
     assert a is not None and a.kind == "clipping" and "5 sample" in a.note
+
+
+def test_stream_levels_match_level_accumulator(rng: np.random.Generator) -> None:
+    """The pipeline's fast level statistics agree with iqscope.dsp.LevelAccumulator (reference)."""
+    from iqscope.dsp import LevelAccumulator
+    from iqscope.measure import pipeline as P
+
+    n = 100_000
+    x = (0.7 * (rng.standard_normal(n) + 1j * rng.standard_normal(n)) + 0.01).astype(np.complex64)
+    x.real = np.clip(x.real, -1, 1)
+    ref = LevelAccumulator(1.0)
+    ref.update(x)
+    r = ref.result()
+    _, stats, _, _ = P._stream(ArrayRecording(x, FS), P.plan_pass(FS, n), None)
+    got = stats.levels()
+    assert got.n_clipped == r.n_clipped
+    assert got.peak_power == pytest.approx(r.peak_power, rel=1e-6)
+    assert got.mean_power == pytest.approx(r.mean_power, rel=1e-6)
+    assert got.dc_power == pytest.approx(r.dc_power, rel=1e-4)

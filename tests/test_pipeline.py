@@ -162,3 +162,20 @@ def test_block_spectra_follow_a_drifting_line(rng: np.random.Generator) -> None:
     np.testing.assert_allclose(tr.frequency_hz, truth, atol=0.05)
     cover = float(np.mean(np.abs(tr.frequency_hz - truth) <= tr.sigma_hz))
     assert 0.45 <= cover <= 0.9  # ~30 blocks: binomial sigma ~9 %
+
+
+def test_invariants_property() -> None:
+    """Any short complex input (length 0-400, any finite values up to 4 FS): finite or null."""
+    from hypothesis import given, settings
+    from hypothesis import strategies as st
+    from hypothesis.extra.numpy import arrays
+
+    finite = st.floats(-4.0, 4.0, allow_nan=False, width=32)
+
+    @settings(max_examples=25, deadline=None)
+    @given(arrays(np.float32, st.integers(0, 800).map(lambda k: 2 * (k // 2)), elements=finite))
+    def check(v: np.ndarray) -> None:
+        x = v[0::2] + 1j * v[1::2]
+        _check_invariants(analyse(ArrayRecording(x, FS), providers=PROVIDERS[:6]))
+
+    check()
