@@ -22,7 +22,7 @@ import math
 from ..dsp._lines import BandPower, LinePower
 from ._context import AnalysisContext, FigureSet
 from ._result import Artefact, Measurement, failed
-from .locate import Layout, db_ratio, layout_of, stats_of
+from .locate import Layout, db_ratio, layout_of
 
 __all__ = ["carrier_figures", "sideband_power", "dc_artefact"]
 
@@ -68,7 +68,6 @@ def carrier_figures(ctx: AnalysisContext) -> FigureSet:
     lay = layout_of(ctx)
     mode = ctx.signal.mode
     spec = ctx.spectrum
-    st = stats_of(ctx)
     ref = ctx.signal_power if ctx.signal_power > 0 else ctx.mean_power
 
     art = dc_artefact(lay, ref)
@@ -115,7 +114,6 @@ def carrier_figures(ctx: AnalysisContext) -> FigureSet:
         out.measurements["carrier_below_pep_db"] = _ratio_figure(
             pep, pep_sigma, car, "peak envelope power (largest |x|^2) over the residual carrier" + dc_note, mode
         )
-    _ = st
     return out
 
 

@@ -148,14 +148,18 @@ class StreamStats:
 
     @property
     def keyed_fraction(self) -> float:
-        """Fraction of envelope blocks whose RMS is below 10 % of the median RMS."""
+        """Fraction of envelope blocks whose RMS is below 10 % of the key-down RMS.
+
+        The key-down level is the 90th percentile of the block powers, so a keyed signal
+        that is off most of the time is still recognised.
+        """
         b = self.block_mean_power
         if b.size < 8:
             return 0.0
-        med = float(np.median(b))
-        if med <= 0:
+        top = float(np.quantile(b, 0.9))
+        if top <= 0:
             return 0.0
-        return float(np.mean(b < 0.01 * med))
+        return float(np.mean(b < 0.01 * top))
 
 
 @dataclass(frozen=True)
