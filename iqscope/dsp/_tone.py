@@ -277,7 +277,8 @@ def estimate_tones(
     the block: for white complex Gaussian noise ``|X_k|^2`` is exponential with mean
     ``sigma^2 sum(w^2)``, whose median is ``ln 2`` times the mean. Bins within 4 bins of
     a found line are excluded; bins within the search band are used when there are at
-    least 32 of them, else the whole block.
+    least 128 of them (the median of 128 bins is good to about 11 %), else the whole
+    block (or the ``noise_band_hz`` band).
 
     References
     ----------
@@ -367,7 +368,7 @@ def estimate_tones(
         if noise_power is None and center is not None and span is not None:
             local = np.abs(_wrap_hz(nat_f - float(center), fs)) <= float(span)
             local &= np.abs(_wrap_hz(nat_f - f, fs)) > 4.0 * fs / n
-            if local.sum() >= 32:
+            if local.sum() >= 128:
                 noise = float(np.median(npow[local]))
         noise = max(noise, 1e-300)
         snr = amp**2 / noise
