@@ -77,3 +77,16 @@ def test_no_signal_gives_null_with_note(rng: np.random.Generator) -> None:
     an = analyse(ArrayRecording(x, FS))
     m = an.measurements["occupied_bandwidth_hz"]
     assert m.value is None and "noise" in m.note
+
+
+def test_narrow_line_is_resolution_limited(rng: np.random.Generator) -> None:
+    """A pure carrier's 99 % bandwidth is set by the window (a few ENBW): said in the note."""
+    n = 1 << 16
+    t = np.arange(n) / FS
+    x = 0.3 * np.exp(2j * np.pi * 1000.3 * t) + np.sqrt(1e-10 / 2) * (rng.standard_normal(n) + 1j * rng.standard_normal(n))
+    an = analyse(ArrayRecording(x, FS))
+    m = an.measurements["occupied_bandwidth_hz"]
+    assert m.details["resolution_limited"] is True
+    assert "--resolution" in m.note
+    fine = analyse(ArrayRecording(x, FS), AnalysisRequest(resolution_hz=1.0))
+    assert fine.measurements["occupied_bandwidth_hz"].value < m.value

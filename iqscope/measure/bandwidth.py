@@ -34,6 +34,9 @@ __all__ = ["bandwidth_figures", "occupied_bandwidth", "x_db_bandwidth"]
 
 #: Fraction of the power left out on each side (RR No. 1.153: beta/2 = 0.5 %).
 BETA_HALF = 0.005
+#: A bandwidth narrower than this many resolution bandwidths (ENBW) is set by the
+#: window, not by the signal: it is reported as resolution-limited.
+RESOLUTION_LIMIT = 4.0
 
 
 def _crossing(cum: npt.NDArray[np.float64], level: float, edges: npt.NDArray[np.float64]) -> tuple[float, int]:
@@ -175,11 +178,14 @@ def bandwidth_figures(ctx: AnalysisContext) -> FigureSet:
     lo, hi = lay.lo_hz - pad, lay.hi_hz + pad
     obw, fl, fh, s = occupied_bandwidth(spec, lay.floor.psd, lo, hi, exclude=lay.artefact_mask)
     rbw = f"RBW {spec.enbw_hz:.3g} Hz ({spec.window})"
+    narrow = f"; within {RESOLUTION_LIMIT:g} RBW: set by the resolution, an upper bound (use --resolution)"
     if math.isfinite(obw):
+        res_lim = obw < RESOLUTION_LIMIT * spec.enbw_hz
         out.measurements["occupied_bandwidth_hz"] = Measurement(
             value=obw, unit="Hz", uncertainty=s,
-            note=f"99 % power bandwidth (RR No. 1.153), noise subtracted, {fl:.1f} to {fh:.1f} Hz; {rbw}",
-            details={"lower_hz": fl, "upper_hz": fh},
+            note=f"99 % power bandwidth (RR No. 1.153), noise subtracted, {fl:.1f} to {fh:.1f} Hz; {rbw}"
+            + (narrow if res_lim else ""),
+            details={"lower_hz": fl, "upper_hz": fh, "resolution_limited": res_lim},
         )
         out.markers["obw_lower"] = fl
         out.markers["obw_upper"] = fh
@@ -187,6 +193,7 @@ def bandwidth_figures(ctx: AnalysisContext) -> FigureSet:
         out.measurements["occupied_bandwidth_hz"] = failed("Hz", "no power above the noise floor")
     w, bl, bh, sb, limited = x_db_bandwidth(spec, lay.floor.psd, lo, hi, 26.0, exclude=lay.artefact_mask)
     if math.isfinite(w):
+        res_lim26 = w < RESOLUTION_LIMIT * spec.enbw_hz
         out.measurements["bandwidth_26db_hz"] = Measurement(
             value=w, unit="Hz", uncertainty=None if limited else sb,
             limited_by_noise=limited, bound="lower" if limited else None,
@@ -194,8 +201,9 @@ def bandwidth_figures(ctx: AnalysisContext) -> FigureSet:
                 f"outermost points 26 dB below the spectrum's peak (ITU-R SM.328 x-dB bandwidth), {bl:.1f} to "
                 f"{bh:.1f} Hz; {rbw}"
                 + ("; the -26 dB level is under the noise: width where the spectrum meets the noise" if limited else "")
+                + (narrow if res_lim26 else "")
             ),
-            details={"lower_hz": bl, "upper_hz": bh},
+            details={"lower_hz": bl, "upper_hz": bh, "resolution_limited": res_lim26},
         )
         out.markers["bw26_lower"] = bl
         out.markers["bw26_upper"] = bh
