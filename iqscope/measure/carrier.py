@@ -181,7 +181,8 @@ def _offset(ctx: AnalysisContext, lay: Layout) -> Measurement:
             s = car.frequency_sigma_hz
             return Measurement(
                 value=car.frequency_hz, unit="Hz", uncertainty=s if math.isfinite(s) else None,
-                note=f"carrier line, power centroid of its main lobe, {clock}", details=details,
+                note=f"carrier line, power centroid of its main lobe (its mean over the recording), {clock}",
+                details=details,
             )
     # Centre of symmetry of a continuous spectrum: parabolic peak of the autoconvolution,
     # good to about a quarter bin (uniform within +/- half a bin -> bin / sqrt(12)).
