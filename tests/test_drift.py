@@ -339,6 +339,35 @@ class TestEdgeCases:
         with pytest.raises(MeasurementError, match="nothing to track"):
             analyse_drift(ArrayRecording(x, 4000.0))
 
+    @staticmethod
+    def _voice_like(fs: float, seconds: float, seed: int = 5) -> np.ndarray:
+        """USB 'voice': noise band-limited to 300-2700 Hz (no discrete line)."""
+        rng = np.random.default_rng(seed)
+        n = int(fs * seconds)
+        spec = np.fft.fft(rng.standard_normal(n) + 1j * rng.standard_normal(n))
+        f = np.fft.fftfreq(n, 1 / fs)
+        spec[(f < 300) | (f > 2700)] = 0
+        x = np.fft.ifft(spec)
+        return 0.1 * x / np.sqrt(np.mean(np.abs(x) ** 2))
+
+    def test_voice_ssb_without_tone_is_not_tracked(self, rng: np.random.Generator) -> None:
+        """A continuous spectrum has local maxima but no discrete line: nothing to follow
+        (a made-up drift of a voice 'peak' would be a number the data cannot support)."""
+        fs = 8000.0
+        x = self._voice_like(fs, 30.0) + 1e-3 * (rng.standard_normal(240_000) + 1j * rng.standard_normal(240_000))
+        with pytest.raises(MeasurementError, match="nothing to track"):
+            analyse_drift(ArrayRecording(x, fs), mode="usb", carrier_hz=0.0)
+
+    def test_voice_ssb_follows_the_carrier_leak(self, rng: np.random.Generator) -> None:
+        fs = 8000.0
+        t = np.arange(240_000) / fs
+        leak = synth(-3.3 + 0.61 / 60 * t, fs, amp=0.003, noise_rms=0.0)
+        x = self._voice_like(fs, 30.0) + leak + 1e-4 * (rng.standard_normal(t.size) + 1j * rng.standard_normal(t.size))
+        res = analyse_drift(ArrayRecording(x, fs), mode="usb", carrier_hz=0.0)
+        assert res.track.plan.kind == "carrier leak"
+        m = res.measurements["drift_hz_per_min"]
+        assert m.value == pytest.approx(0.61, abs=max(0.05, 3 * m.uncertainty))
+
     def test_too_short_raises(self) -> None:
         x = synth(np.full(400, 100.0), 4000.0)
         with pytest.raises(MeasurementError):

@@ -160,6 +160,16 @@ class TestFindLines:
         assert lines[0].ratio_db == pytest.approx(40.0)
         assert lines[0].power == pytest.approx(1e-2 - 1e-6, rel=1e-3)
 
+    def test_contrast_rejects_a_broad_bump(self) -> None:
+        """A Gaussian bump (a continuous spectrum) 30 dB above the floor has a maximum,
+        but it does not stand 10 dB above its +/-25-bin surroundings; a line does."""
+        f = np.arange(-500, 500, 1.0)
+        psd = 1e-6 + 1e-3 * np.exp(-0.5 * (f / 40.0) ** 2)
+        psd[f == 300] = 1e-3
+        lines = find_lines(f, psd, 1e-6, min_contrast_db=10.0)
+        assert [ln.frequency_hz for ln in lines] == pytest.approx([300.0])
+        assert len(find_lines(f, psd, 1e-6)) == 2  # without the contrast test
+
     def test_flat_noise_has_none(self) -> None:
         f = np.arange(100.0)
         assert find_lines(f, np.ones(100), 1.0) == []

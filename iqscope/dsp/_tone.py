@@ -469,6 +469,8 @@ def find_lines(
     min_ratio_db: float = 15.0,
     max_lines: int = 16,
     lobe_bins: int = 3,
+    min_contrast_db: float | None = None,
+    contrast_bins: int = 25,
 ) -> list[LinePeak]:
     """Discrete lines in an averaged PSD, strongest first.
 
@@ -488,6 +490,13 @@ def find_lines(
     lobe_bins : int
         Half-width (bins) over which a line's power is summed, and the minimum spacing
         between two reported lines.
+    min_contrast_db : float, optional
+        Also require the peak to stand this far above the median PSD of its surroundings
+        on each side (``lobe_bins`` .. ``contrast_bins`` bins away): a discrete line does;
+        a local maximum of a continuous spectrum (voice, noise modulation) or the top of a
+        filter's band edge does not.
+    contrast_bins : int
+        Outer half-width of those surroundings, bins.
 
     Returns
     -------
@@ -512,6 +521,12 @@ def find_lines(
     for k in cand:
         if any(abs(int(k) - j) <= 2 * lobe_bins for j in taken):
             continue
+        if min_contrast_db is not None:
+            left = p[max(0, k - contrast_bins) : max(0, k - lobe_bins)]
+            right = p[k + lobe_bins + 1 : k + contrast_bins + 1]
+            level = max((float(np.median(side)) for side in (left, right) if side.size), default=0.0)
+            if p[k] < level * 10 ** (min_contrast_db / 10.0):
+                continue
         taken.append(int(k))
         lo, hi = max(0, k - lobe_bins), min(p.size, k + lobe_bins + 1)
         power = float((p[lo:hi] - noise_psd).clip(min=0).sum() * bin_hz)

@@ -96,6 +96,9 @@ MIN_BLOCK_SNR = 60.0
 #: drift needs no finer time resolution, and fewer blocks cost less per hour of recording
 #: (the per-block cost is mostly fixed once each line has its own decimated channel).
 MIN_AUTO_BLOCK_S = 1.0
+#: A line to follow must stand this far above the median PSD of its surroundings
+#: (+/-25 bins of the survey spectrum): voice harmonics and noise-modulation bumps do not.
+LINE_CONTRAST_DB = 10.0
 #: Fewest blocks a track must have to give figures.
 MIN_BLOCKS = 8
 #: Candidate block lengths, s (octaves, so ADEV taus are round numbers).
@@ -225,7 +228,8 @@ def survey_at_start(recording: Recording, *, tries: int = 8) -> tuple[Spectrum, 
     n = recording.n_samples
     spec, noise = survey_spectrum(recording)
     for i in range(1, tries):
-        if find_lines(spec.freqs_hz, spec.psd, noise, min_ratio_db=10.0, max_lines=1):
+        if find_lines(spec.freqs_hz, spec.psd, noise, min_ratio_db=10.0, max_lines=1,
+                      min_contrast_db=LINE_CONTRAST_DB):
             return spec, noise, int((i - 1) * n // tries)
         start = int(i * n // tries)
         spec, noise = survey_spectrum(recording, start=start)
@@ -274,9 +278,12 @@ def plan_lines(
         No line stands at least 10 dB above the noise (nothing to follow).
     """
     fs = spectrum.sample_rate_hz
-    lines = find_lines(spectrum.freqs_hz, spectrum.psd, noise_psd, min_ratio_db=10.0, max_lines=24)
+    lines = find_lines(spectrum.freqs_hz, spectrum.psd, noise_psd, min_ratio_db=10.0, max_lines=24,
+                       min_contrast_db=LINE_CONTRAST_DB)
     if not lines:
-        raise MeasurementError("no discrete line stands 10 dB above the noise: nothing to track")
+        raise MeasurementError(
+            "no discrete line stands 10 dB above the noise and its surroundings: nothing to track"
+        )
     tol = max(4 * spectrum.bin_hz, hint_tol_hz)
     mode = None if mode in (None, "auto") else mode
     strongest = lines[0]
@@ -317,6 +324,13 @@ def plan_lines(
         ln = ln or strongest  # CW/AM: the carrier is the strongest line anyway
         chosen, shift, kind = [ln], 0.0, "carrier"
         desc = f"the carrier at {ln.frequency_hz:.1f} Hz"
+    elif mode in ("usb", "lsb") and tone_hz is None and carrier_offset_hz is not None and \
+            _nearest(lines, carrier_offset_hz, tol) is not None:
+        # no test tone named: the residual carrier is a line that stands for the carrier
+        leak = _nearest(lines, carrier_offset_hz, tol)
+        assert leak is not None
+        chosen, shift, kind = [leak], 0.0, "carrier leak"
+        desc = f"the residual carrier at {leak.frequency_hz:.1f} Hz"
     elif mode in ("usb", "lsb"):
         sign = 1.0 if mode == "usb" else -1.0
         ln = None
@@ -905,7 +919,8 @@ def track_frequency(
 def _with_survey(plan: LinePlan, spectrum: Spectrum, noise: float) -> LinePlan:
     """Fill a given plan's SNR and neighbour figures from a survey spectrum."""
     fs = spectrum.sample_rate_hz
-    lines = find_lines(spectrum.freqs_hz, spectrum.psd, noise, min_ratio_db=10.0, max_lines=24)
+    lines = find_lines(spectrum.freqs_hz, spectrum.psd, noise, min_ratio_db=10.0, max_lines=24,
+                       min_contrast_db=LINE_CONTRAST_DB)
     tol = max(4 * spectrum.bin_hz, 5.0)
     powers = []
     for f in plan.lines_hz:
@@ -1413,7 +1428,8 @@ def prepare_tracking(
     plan = _with_survey(plan, spectrum, noise_psd)
     stable_search: float | None = None
     if stable is not None:
-        lines = find_lines(spectrum.freqs_hz, spectrum.psd, noise_psd, min_ratio_db=10.0, max_lines=24)
+        lines = find_lines(spectrum.freqs_hz, spectrum.psd, noise_psd, min_ratio_db=10.0, max_lines=24,
+                           min_contrast_db=LINE_CONTRAST_DB)
         tol = max(4 * spectrum.bin_hz, 5.0)
         near = _nearest(lines, stable, max(tol, 50.0))
         if near is None:
