@@ -38,6 +38,7 @@ from ._noise import (
     bin_correlation,
     cross_term_factor,
     noise_floor,
+    realized_power_factor,
     spectrum_dof,
     sum_variance_factor,
 )
@@ -80,6 +81,7 @@ __all__ = [
     "bin_correlation",
     "cross_term_factor",
     "noise_floor",
+    "realized_power_factor",
     "spectrum_dof",
     "sum_variance_factor",
     "BOUND_SIGMAS",

@@ -44,6 +44,7 @@ from ._noise import (
     averaged_quantile_bias,
     bin_correlation,
     cross_term_factor,
+    realized_power_factor,
     spectrum_dof,
     sum_variance_factor,
 )
@@ -303,7 +304,9 @@ def band_power(
         Relative 1-sigma of the floor.
     random_signal : bool
         Treat the signal in the band as a random process (speech, noise): adds the
-        estimation variance of its own spectrum, ``df^2 sum_ij rho(i-j) s_i s_j / K``.
+        estimation variance of its own spectrum, ``c df^2 sum_ij rho(i-j) s_i s_j / K``,
+        with ``c = realized_power_factor(...)`` so that the error is counted relative to
+        the power the recording contains (not the modulation's long-run mean).
         Use False for deterministic lines (tones), whose only variance is the noise's.
     exclude : ndarray of bool, optional
         Bins to leave out (e.g. a carrier lobe, a receiver artefact).
@@ -333,7 +336,8 @@ def band_power(
         rho = bin_correlation(spectrum.window, _nfft(spectrum), 16)
         kern = np.concatenate((rho[:0:-1], rho))
         conv = np.convolve(s, kern)[rho.size - 1 : rho.size - 1 + s.size]
-        var += float(np.dot(s, conv)) * df * df / k
+        c = realized_power_factor(spectrum.window, _nfft(spectrum), float(getattr(spectrum, "overlap", 0.5)))
+        var += c * float(np.dot(s, conv)) * df * df / k
     sigma = math.sqrt(max(var, 0.0))
     noise_sigma = math.sqrt(max(noise_var, 0.0))
     detected = p > DETECTION_SIGMAS * noise_sigma and p > 0

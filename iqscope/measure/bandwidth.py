@@ -24,7 +24,7 @@ import math
 import numpy as np
 import numpy.typing as npt
 
-from ..dsp._noise import bin_correlation, spectrum_dof
+from ..dsp._noise import bin_correlation, realized_power_factor, spectrum_dof
 from ..dsp._types import Spectrum
 from ._context import AnalysisContext, FigureSet
 from ._result import Measurement, failed
@@ -94,7 +94,8 @@ def occupied_bandwidth(
     nfft = int(getattr(spectrum, "nfft", 0) or spectrum.psd.size)
     rho = bin_correlation(spectrum.window, nfft, 16)
     spread = float(rho[0] + 2 * rho[1:].sum())
-    var_bins = (psd * df) ** 2 * spread / k
+    c = realized_power_factor(spectrum.window, nfft, float(getattr(spectrum, "overlap", 0.5)))
+    var_bins = c * (psd * df) ** 2 * spread / k
     var_lo = float(var_bins[: i_lo + 1].sum()) + (beta_half**2) * float(var_bins.sum())
     var_hi = float(var_bins[i_hi:].sum()) + (beta_half**2) * float(var_bins.sum())
     s_lo = max(float(s[i_lo]), 1e-300)
