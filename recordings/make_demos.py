@@ -80,7 +80,7 @@ def demo_specs() -> dict[str, tuple[SignalSpec, dict[str, Any]]]:
             # float file: quantise to 24 bits so every value is exact in float32
             receiver=Receiver(image_dbc=-42.0, dc_offset_dbfs=-60.0, adc_bits=24),
             center_frequency_hz=3_700_000.0,
-            seed=80,
+            seed=1080,
         ),
         {"format": "sigmf", "datatype": "cf32_le"},
     )
@@ -117,7 +117,7 @@ def demo_specs() -> dict[str, tuple[SignalSpec, dict[str, Any]]]:
             noise_dbfs_per_hz=-122.0,
             receiver=rx_dc,
             center_frequency_hz=14_200_000.0,
-            seed=21,
+            seed=1021,
         ),
         {"format": "sigmf", "datatype": "ci16_le"},
     )
@@ -133,7 +133,7 @@ def demo_specs() -> dict[str, tuple[SignalSpec, dict[str, Any]]]:
             noise_dbfs_per_hz=-118.0,
             receiver=Receiver(dc_offset_dbfs=-58.0, adc_bits=16),
             center_frequency_hz=7_150_000.0,
-            seed=40,
+            seed=2040,
         ),
         {"format": "sigmf", "datatype": "ci16_le"},
     )
@@ -149,7 +149,7 @@ def demo_specs() -> dict[str, tuple[SignalSpec, dict[str, Any]]]:
             noise_dbfs_per_hz=-125.0,
             receiver=Receiver(dc_offset_dbfs=-62.0, adc_bits=16),
             center_frequency_hz=10_140_000.0,
-            seed=30,
+            seed=2030,
         ),
         {"format": "wav", "bits": 16},
     )

@@ -156,7 +156,7 @@ def test_report_plot_and_annotate(capsys: pytest.CaptureFixture[str], recordings
     assert "\u2718 FAIL" in html
     names = {p.name for p in plots.iterdir()}
     assert {"bad-envelope.png", "bad-spectrogram.png", "bad-spectrum.png"} <= names
-    assert names <= {f"bad-{n}.png" for n in ("spectrum", "spectrogram", "envelope", "frequency", "allan")}
+    assert names <= {f"bad-{n}.png" for n in ("spectrogram", "spectrum", "envelope", "frequency", "allan")}
     graded = recordings["bad"].with_name("bad.graded.sigmf-meta")
     sigmf.fromfile(str(graded)).validate()
     # outputs are never overwritten without --force, checked before any work
