@@ -96,7 +96,10 @@ def carrier_figures(ctx: AnalysisContext) -> FigureSet:
             out.measurements[name] = failed("dB", f"carrier not placed: {ctx.signal.how}")
         return out
     car = lay.carrier
-    assert car is not None
+    if car is None or not math.isfinite(car.power):
+        for name in ("carrier_suppression_db", "carrier_below_pep_db"):
+            out.measurements[name] = failed("dB", "recording too short for a spectrum: carrier not measured")
+        return out
     sb, which = sideband_power(ctx, lay)
     if not lay.has_signal or not sb.detected or sb.power <= 0:
         out.measurements["carrier_suppression_db"] = failed("dB", "no sideband power above the noise floor")

@@ -517,7 +517,15 @@ def locate_signal(
         mirror_score = _symmetry_about(s, spectrum, given)
         return info("dsb" if mirror_score >= _SYMMETRY_DSB else _ssb_side(s, spectrum, given), given, "given with --carrier", True)
 
-    assert strongest is not None
+    if strongest is None:
+        # Power above the noise but no discrete line: a continuum (speech, noise).
+        fc0, how0 = _dsb_centre(spectrum, s, peaks, h)
+        if fc0 is not None and _symmetry_about(s, spectrum, fc0) >= _SYMMETRY_DSB and _centre_gap(s, spectrum, fc0, h):
+            return info("dsb", fc0, how0, True)
+        raise UsageError(
+            "the signal looks like single sideband (not symmetric about any carrier): add --carrier HZ "
+            "(offset from the capture centre, or absolute RF) or --tone HZ with --mode usb or --mode lsb"
+        )
     frac = strongest.power / total if total > 0 else 1.0
     if frac >= _CARRIER_FRACTION:
         m = _am_or_cw(spectrum, s, strongest.frequency_hz, strongest.power, h, keyed_fraction)
