@@ -16,7 +16,8 @@
    :class:`~iqscope.measure.FigureSet`. A provider that raises does not stop the
    others: its exception becomes a warning, and the measurements it declares in an
    optional ``provides`` attribute (``{name: unit}``) are reported with value null and
-   the reason.
+   the reason. When two providers give the same key, the first value wins (a value
+   beats a null).
 
 Resolution: by default the bin spacing is at most :data:`DEFAULT_BIN_HZ` (6.25 Hz), so
 a carrier 100 Hz from a sideband is 16 bins away, outside both main lobes (+/- 4 bins
@@ -478,7 +479,10 @@ def analyse(
     for provider in PROVIDERS if providers is None else providers:
         fset, _ = _run_provider(provider, ctx)
         for k, m in fset.measurements.items():
-            measurements.setdefault(k, m)
+            # The first provider to give a figure wins, but a value beats a null.
+            old = measurements.get(k)
+            if old is None or (old.value is None and m.value is not None):
+                measurements[k] = m
         artefacts.extend(fset.artefacts)
         markers.update({k: float(v) for k, v in fset.markers.items() if v is not None and math.isfinite(v)})
         traces.update(fset.traces)
