@@ -43,6 +43,7 @@ import numpy as np
 import numpy.typing as npt
 from scipy import fft as sp_fft
 from scipy import special
+from scipy import signal
 from scipy.signal import windows
 
 from ..dsp._allan import AllanResult, oadev
@@ -132,6 +133,8 @@ class LinePlan:
     neighbour_ratio: float = 0.0
     """Largest amplitude ratio (other line / followed line) among the other lines,
     weighted by 1/distance in Hz: sets whether the Hann taper is needed."""
+    warnings: tuple[str, ...] = ()
+    """Doubts about the choice, for the report."""
 
 
 def resolve_frequency(
@@ -285,6 +288,19 @@ def plan_lines(
             "no discrete line stands 10 dB above the noise and its surroundings: nothing to track"
         )
     tol = max(4 * spectrum.bin_hz, hint_tol_hz)
+    # A line at the capture centre is usually the receiver's DC offset (DESIGN.md section 3,
+    # receiver artefacts): leave it out unless it is all there is or the user points at it.
+    dc_tol = max(2 * spectrum.bin_hz, 1.0)
+    hints = [h for h in (carrier_offset_hz, line_hz) if h is not None]
+    at_dc = [ln for ln in lines if abs(ln.frequency_hz) <= dc_tol]
+    plan_warnings: tuple[str, ...] = ()
+    if at_dc and not any(abs(h) <= tol for h in hints):
+        rest = [ln for ln in lines if abs(ln.frequency_hz) > dc_tol]
+        if rest:
+            lines = rest
+        else:
+            plan_warnings = ("the only line sits at the capture centre: it may be the receiver's DC "
+                             "offset rather than the transmitter",)
     mode = None if mode in (None, "auto") else mode
     strongest = lines[0]
     chosen: list[LinePeak]
@@ -393,7 +409,7 @@ def plan_lines(
          for o in others),
         default=0.0,
     )
-    return LinePlan(tuple(c.frequency_hz for c in chosen), shift, kind, desc, snr, sep, ratio)
+    return LinePlan(tuple(c.frequency_hz for c in chosen), shift, kind, desc, snr, sep, ratio, plan_warnings)
 
 
 def choose_block_s(
@@ -566,22 +582,52 @@ class FrequencyTrack:
         return self.times_s[ok], f[ok], sig[ok]
 
 
-class _Channel:
-    """One followed line's narrow channel: a complex band-pass decimator, per block.
+class _Polyphase:
+    """A complex FIR filter followed by decimation by D, as one small matrix product.
 
-    The filter is a 4-stage boxcar (the impulse response of a CIC decimator, Hogenauer
-    1981) of ratio D, shifted to the channel centre ``mix_hz``: taps
-    ``g[j] = h[j] exp(-2j pi mix j / fs)``. It is applied as a polyphase matrix product
-    (one small complex GEMM per block), stateless per block (only outputs whose taps lie
-    inside the block). A tone at f comes out at ``f mod fs/D`` with gain ``|H(f - mix)|``.
-    The channel is ``+/- half_band_hz`` wide and the output rate is at least 16 times
-    that, so the droop inside it is under 0.25 dB and alias bands are attenuated by
-    more than 90 dB. No decimation (D = 1) when D would be below 4.
+    ``taps`` (length L) are split into Q = ceil(L / D) phases; for a block x reshaped to
+    (K, D) rows, output k = sum_q row(k + q) . phase(q). Stateless per block: only
+    outputs whose taps lie wholly inside the block are produced.
+    """
+
+    def __init__(self, taps: npt.NDArray[np.complex128], decim: int) -> None:
+        q = -(-taps.size // decim)
+        padded = np.zeros(q * decim, np.complex128)
+        padded[: taps.size] = taps
+        self.decim = decim
+        self.matrix = np.ascontiguousarray(padded.reshape(q, decim).T).astype(np.complex64)  # (D, Q)
+
+    def __call__(self, x: npt.NDArray[np.complex64]) -> npt.NDArray[np.complex64]:
+        d, q = self.matrix.shape
+        k = x.size // d
+        if k <= q:
+            return np.zeros(0, np.complex64)
+        m = np.ascontiguousarray(x[: k * d], dtype=np.complex64).reshape(k, d) @ self.matrix
+        out = m[: k - q + 1, 0].copy()
+        for j in range(1, q):
+            out += m[j : k - q + 1 + j, j]
+        return out
+
+
+class _Channel:
+    """One followed line's own narrow channel: two decimating complex band-pass stages.
+
+    Stage 1 (when the rate allows a ratio D1 >= 4): a 4-stage boxcar (the response of a
+    CIC decimator, Hogenauer 1981) shifted to the channel centre, down to a rate of at
+    least 16 x the channel half-width H; it only has to keep aliases away from what
+    stage 2 keeps (> 70 dB). Stage 2: a Kaiser-window FIR (Kaiser 1974 design rules,
+    80 dB stopband) shifted to the channel centre, flat to 1.2 H and stopping from 2 H,
+    down to a rate of 4 H. So the channel sees +/- H around the line and nothing from
+    beyond 2 H: a continuous spectrum (voice) or strong lines a few hundred hertz away
+    cannot leak into the estimate. A tone at f comes out at ``f mod rate`` with gain
+    ``response(f)``. No channel (the whole band) when the rate is under 8 H.
 
     References
     ----------
     .. [1] E. B. Hogenauer, "An economical class of digital filters for decimation and
        interpolation", IEEE Trans. ASSP 29(2):155-162, 1981.
+    .. [2] J. F. Kaiser, "Nonrecursive digital filter design using the I0-sinh window
+       function", Proc. IEEE ISCAS 1974, pp. 20-23 (``scipy.signal.kaiserord``).
     """
 
     ORDER = 4
@@ -590,24 +636,42 @@ class _Channel:
         self.fs = fs
         self.span_hz = span_hz
         self.half_band_hz = max(3.0 * span_hz + 50.0, 16.0 / block_s)
-        d = int(fs // (16.0 * self.half_band_hz))
-        self.decim = d if d >= 4 else 1
+        h = self.half_band_hz
+        d1 = int(fs // (16.0 * h))
+        self.d1 = d1 if d1 >= 4 else 1
+        fs1 = fs / self.d1
+        d2 = int(fs1 // (4.0 * h))
+        self.d2 = d2 if d2 >= 2 else 1
+        self.decim = self.d1 * self.d2
         self.mix_hz = float(centre_hz) if self.decim > 1 else 0.0
-        self._taps: npt.NDArray[np.complex64] | None = None
+        self._stage1: _Polyphase | None = None
+        self._stage2: _Polyphase | None = None
         if self.decim > 1:
-            h = np.ones(self.decim)
-            for _ in range(self.ORDER - 1):
-                h = np.convolve(h, np.ones(self.decim))
-            self._h = h / float(self.decim) ** self.ORDER
-            self._make_taps()
+            self._box = np.ones(1)
+            if self.d1 > 1:
+                box = np.ones(self.d1)
+                for _ in range(self.ORDER - 1):
+                    box = np.convolve(box, np.ones(self.d1))
+                self._box = box / float(self.d1) ** self.ORDER
+            if self.d2 > 1:
+                numtaps, beta = signal.kaiserord(80.0, 0.8 * h / (0.5 * fs1))
+                numtaps |= 1  # odd: a whole-sample delay
+                self._fir = signal.firwin(numtaps, 1.6 * h, window=("kaiser", beta), fs=fs1)
+            self._make_filters()
 
-    def _make_taps(self) -> None:
-        d = self.decim
-        q = -(-self._h.size // d)
-        hp = np.zeros(q * d)
-        hp[: self._h.size] = self._h
-        g = hp * np.exp(-2j * np.pi * (self.mix_hz / self.fs) * np.arange(q * d))
-        self._taps = np.ascontiguousarray(g.reshape(q, d).T).astype(np.complex64)  # (D, Q)
+    def _make_filters(self) -> None:
+        fs1 = self.fs / self.d1
+        if self.d1 > 1:
+            g1 = self._box * np.exp(-2j * np.pi * (self.mix_hz / self.fs) * np.arange(self._box.size))
+            self._stage1 = _Polyphase(g1, self.d1)
+        if self.d2 > 1:
+            c1 = self._wrap(self.mix_hz, fs1)  # where the centre sits after stage 1
+            g2 = self._fir * np.exp(-2j * np.pi * (c1 / fs1) * np.arange(self._fir.size))
+            self._stage2 = _Polyphase(g2, self.d2)
+
+    @staticmethod
+    def _wrap(f: float, rate: float) -> float:
+        return (f + rate / 2) % rate - rate / 2
 
     @property
     def rate_hz(self) -> float:
@@ -615,46 +679,68 @@ class _Channel:
 
     def to_channel(self, f_hz: float) -> float:
         """Where a frequency (Hz offset) appears in the channel's output."""
-        r = self.rate_hz
-        return (f_hz + r / 2) % r - r / 2 if self.decim > 1 else f_hz
+        return self._wrap(f_hz, self.rate_hz) if self.decim > 1 else f_hz
 
     def from_channel(self, f_out_hz: float) -> float:
         """The input frequency near ``mix_hz`` that appears at ``f_out_hz``."""
         if self.decim == 1:
             return f_out_hz
-        r = self.rate_hz
         d = f_out_hz - self.to_channel(self.mix_hz)
-        return self.mix_hz + (d + r / 2) % r - r / 2
+        return self.mix_hz + self._wrap(d, self.rate_hz)
 
     def follow(self, centre_hz: float) -> None:
         """Re-centre the channel when the line has moved more than a span from its centre."""
         if self.decim > 1 and abs(centre_hz - self.mix_hz) > self.span_hz:
             self.mix_hz = float(centre_hz)
-            self._make_taps()
+            self._make_filters()
+
+    def disable(self) -> None:
+        """Process the full band (no channel)."""
+        self.decim, self.d1, self.d2, self.mix_hz = 1, 1, 1, 0.0
+        self._stage1 = self._stage2 = None
+
+    @property
+    def history_samples(self) -> int:
+        """Input samples before a block that the filters need to cover the whole block."""
+        if self.decim == 1:
+            return 0
+        n1 = self._box.size - 1 if self.d1 > 1 else 0
+        n2 = (self._fir.size - 1) * self.d1 if self.d2 > 1 else 0
+        return n1 + n2
+
+    @property
+    def delay_s(self) -> float:
+        """Group delay of the channel filters (both linear phase), s."""
+        return 0.5 * self.history_samples / self.fs
 
     def output(self, block: npt.NDArray[np.complex64]) -> npt.NDArray[np.complex64]:
-        """The channel's samples for one block (at ``rate_hz``)."""
+        """The channel's samples for ``block`` (at ``rate_hz``): the outputs whose filter
+        spans lie inside it. Prepend :attr:`history_samples` of the previous block to
+        cover the whole block (shifted by :attr:`delay_s`)."""
         if self.decim == 1:
             return block
-        assert self._taps is not None
-        d, q = self._taps.shape
-        k = block.size // d
-        if k <= q:
-            return np.zeros(0, np.complex64)
-        m = np.ascontiguousarray(block[: k * d], dtype=np.complex64).reshape(k, d) @ self._taps
-        out = m[: k - q + 1, 0].copy()
-        for j in range(1, q):
-            out += m[j : k - q + 1 + j, j]
-        return out
+        y = block
+        if self._stage1 is not None:
+            y = self._stage1(y)
+        if self._stage2 is not None:
+            y = self._stage2(y)
+        return y
 
     def response(self, f_hz: float) -> float:
-        """Amplitude response at input frequency ``f_hz`` (1 at the channel centre)."""
+        """Amplitude response at input frequency ``f_hz`` (about 1 at the channel centre)."""
         if self.decim == 1:
             return 1.0
-        x = math.pi * (f_hz - self.mix_hz) / self.fs
-        if abs(x) < 1e-12:
-            return 1.0
-        return abs(math.sin(self.decim * x) / (self.decim * math.sin(x))) ** self.ORDER
+        g = 1.0
+        off = f_hz - self.mix_hz
+        if self.d1 > 1:
+            x = math.pi * off / self.fs
+            if abs(x) > 1e-12:
+                g *= abs(math.sin(self.d1 * x) / (self.d1 * math.sin(x))) ** self.ORDER
+        if self.d2 > 1:
+            fs1 = self.fs / self.d1
+            n = np.arange(self._fir.size)
+            g *= abs(complex(np.sum(self._fir * np.exp(-2j * np.pi * off / fs1 * n))))
+        return g
 
 
 class LineTracker:
@@ -718,7 +804,12 @@ class LineTracker:
         self._channels = [_Channel(self.sample_rate_hz, c, self.span_hz, self.block_s) for c in starts]
         if not decimate:
             for ch in self._channels:
-                ch.decim, ch.mix_hz = 1, 0.0
+                ch.disable()
+        self._history_n = max((ch.history_samples for ch in self._channels), default=0)
+        self._history: npt.NDArray[np.complex64] | None = None
+        #: Block times are the centres of what the channels see: the block shifted back by
+        #: the channel filters' group delay (the same for every channel of one tracker).
+        self.delay_s = max((ch.delay_s for ch in self._channels), default=0.0)
         self._pending: list[npt.NDArray[np.complex64]] = []
         self._n_pending = 0
         self._blocks: list[BlockEstimate] = []
@@ -758,7 +849,10 @@ class LineTracker:
         for i, ch in enumerate(self._channels):
             if ch.decim == 1:
                 continue
-            y = ch.output(block)
+            ext = block
+            if self._history is not None and ch.history_samples:
+                ext = np.concatenate((self._history[self._history.size - ch.history_samples :], block))
+            y = ch.output(ext)
             if y.size < 8:
                 raise ValueError("block too short for the channel decimator")
             e = estimate_tones(y, ch.rate_hz, [ch.to_channel(centres[i])], span_hz=self.span_hz,
@@ -788,8 +882,10 @@ class LineTracker:
             fc = float(np.mean([e.frequency_hz for e in line_ests])) - self.plan.carrier_shift_hz
             ph = np.exp(-2j * np.pi * fc / self.sample_rate_hz * np.arange(block.size))
             carrier_p = abs(complex(np.dot(block.astype(np.complex128), ph))) ** 2 / block.size**2
+        if self._history_n:
+            self._history = block[max(0, block.size - self._history_n) :].copy()
         i = len(self._blocks)
-        est = BlockEstimate(i, (i + 0.5) * self.block_s, line_ests, stable, carrier_p)
+        est = BlockEstimate(i, (i + 0.5) * self.block_s - self.delay_s, line_ests, stable, carrier_p)
         self._blocks.append(est)
         return est
 
@@ -1215,7 +1311,7 @@ def drift_measurements(
 
     # --- settling -------------------------------------------------------------------
     key_i = int(np.argmax(track.valid))
-    key_down = key_i * T
+    key_down = float(track.times_s[key_i]) - T / 2  # start of the first block with the line
     details["key_down_s"] = key_down
     band = max(settle_band_hz, 5.0 * sig_med)
     # final value: the last 20 % of the track, at least 60 s, at most half of it
@@ -1291,6 +1387,7 @@ def drift_measurements(
         lost = int(np.sum(~track.stable_valid))
         if lost:
             warnings.append(f"the stable reference line was not seen in {lost} of {track.n_blocks} blocks")
+    warnings.extend(track.plan.warnings)
     lost_line = int(np.sum(~track.valid))
     if lost_line and key_i == 0:
         warnings.append(f"the followed line was below the noise in {lost_line} of {track.n_blocks} blocks")
