@@ -195,3 +195,11 @@ def test_explicit_modes_on_degenerate_input(mode: str, n: int) -> None:
     an = analyse(ArrayRecording(np.full(n, 0.1 + 0j), FS), AnalysisRequest(mode=mode, carrier_hz=100.0, tone_hz=1000.0))
     _check_invariants(an)
     assert not [w for w in an.warnings if " failed: " in w]
+
+
+def test_resolution_bounds() -> None:
+    """A resolution coarser than fs/16 or finer than fs/2^22 is clamped with a warning."""
+    coarse = plan_pass(FS, 100_000, resolution_hz=1e6)
+    assert coarse.nfft == 16 and coarse.warnings
+    fine = plan_pass(FS, 1 << 24, resolution_hz=1e-6)
+    assert fine.nfft <= 1 << 22 and fine.warnings

@@ -90,6 +90,9 @@ BLOCK_PSD_BYTES: Final = 64 << 20
 SPECTROGRAM_COLS: Final = 512
 #: Largest chunk read at once, samples (complex64: 32 MB).
 MAX_CHUNK: Final = 1 << 22
+#: Bounds of the FFT length (a spectrum needs some bins; memory needs a ceiling).
+MIN_NFFT: Final = 16
+MAX_NFFT: Final = 1 << 22
 
 #: Figure providers run in order. Core figures first; others append theirs (one line each).
 PROVIDERS: list[FigureProvider] = [
@@ -175,6 +178,12 @@ def plan_pass(sample_rate_hz: float, n_samples: int, resolution_hz: float | None
         raise ValueError(f"{resolution_hz=} must be a positive number of Hz")
     target = DEFAULT_BIN_HZ if resolution_hz is None else float(resolution_hz)
     nfft = int(sp_fft.next_fast_len(max(1, int(math.ceil(fs / target)))))
+    if nfft < MIN_NFFT:
+        warnings.append(f"--resolution {target:g} Hz is coarser than fs/{MIN_NFFT}: using {fs / MIN_NFFT:.3g} Hz")
+        nfft = MIN_NFFT
+    elif nfft > MAX_NFFT:
+        warnings.append(f"--resolution {target:g} Hz needs more than {MAX_NFFT} bins: using {fs / MAX_NFFT:.3g} Hz")
+        nfft = MAX_NFFT
     step_frac = 1.0 - OVERLAP
     max_nfft = int(n_samples / (1.0 + (MIN_AVERAGES - 1) * step_frac)) if resolution_hz is None else n_samples
     if n_samples < 16:
