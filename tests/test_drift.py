@@ -384,6 +384,11 @@ class TestEdgeCases:
         assert res.track.plan.kind == "carrier leak"
         m = res.measurements["drift_hz_per_min"]
         assert m.value == pytest.approx(0.61, abs=max(0.05, 3 * m.uncertainty))
+        # the voice 300 Hz away (40 dB stronger in total) stays outside the line's channel:
+        # each block's error is within its stated sigma (RMS z near 1)
+        tr = res.track
+        z = (tr.frequency_hz - (-3.3 + 0.61 / 60 * tr.times_s)) / tr.sigma_hz
+        assert float(np.sqrt(np.mean(z**2))) < 1.6
 
     def test_too_short_raises(self) -> None:
         x = synth(np.full(400, 100.0), 4000.0)
