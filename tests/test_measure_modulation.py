@@ -71,3 +71,14 @@ def test_index_absent_for_other_modes(rng: np.random.Generator) -> None:
     x = 0.3 * np.exp(2j * np.pi * 1000.0 * t)
     an = analyse(ArrayRecording(x, FS))
     assert "modulation_index" not in an.measurements
+
+
+def test_over_modulation_seen_by_the_signed_envelope(rng: np.random.Generator) -> None:
+    """Linear AM with m = 1.2: the carrier goes through zero; lines and signed envelope give 1.2."""
+    x = am(rng, 1 << 17, 2222.2, 800.0, 1.2)
+    an = analyse(ArrayRecording(x, FS), AnalysisRequest(mode="am"))
+    mi = an.measurements["modulation_index"]
+    assert mi.value == pytest.approx(1.2, abs=0.01)
+    assert mi.details["index_envelope"] == pytest.approx(1.2, abs=0.01)
+    assert mi.details["negative_peak"] == pytest.approx(1.2, abs=0.01)
+    assert "over-modulation" in mi.note

@@ -6,8 +6,11 @@ gives the modulation index ``m = (Emax - Emin) / (Emax + Emin)`` [1]_, its posit
 ``Emax / Ec - 1`` and its negative peak ``1 - Emin / Ec`` with ``Ec`` the carrier (mean)
 envelope. Noise outside the signal's band would inflate ``Emax`` and deflate ``Emin``,
 so :class:`EnvelopeExtremes` first shifts the carrier to 0 Hz and keeps only the band
-``+/- half_bandwidth_hz`` (an FFT brick-wall filter on overlapping blocks whose edges are
-discarded), then takes the extremes as the ``q`` and ``1 - q`` quantiles of each block:
+``+/- half_bandwidth_hz`` (an FFT filter with raised-cosine edges on overlapping blocks
+whose edges are discarded). The envelope is the component in phase with the carrier
+(the signed envelope: it goes below zero when over-modulation drives the carrier
+through zero, where ``|x|`` would fold back), and the extremes are the ``q`` and
+``1 - q`` quantiles of each block:
 for a sinusoidal modulation the envelope dwells at its extremes (arcsine density), so
 the 0.1 % quantile sits within ``1 - cos(pi * 0.001) = 5e-6`` of the true extreme.
 
@@ -133,7 +136,9 @@ class EnvelopeExtremes:
         """Add a run of samples beginning at sample ``start_index`` of the recording.
 
         Only the middle ``len(x) - 2 guard`` samples are used (the first and last guard
-        samples are transients of the filter), unless ``len(x)`` is short.
+        samples are transients of the filter), unless ``len(x) <= 3 guard``; feed blocks
+        overlapping by ``2 guard`` (``recording.chunks(block, overlap=2 * guard)``) so the
+        used parts join up.
         """
         xb = np.asarray(x, dtype=np.complex64)
         n = xb.size
@@ -150,8 +155,18 @@ class EnvelopeExtremes:
             g = np.clip((self.half_bw + edge - np.abs(f)) / edge, 0.0, 1.0)
             gain = (0.5 - 0.5 * np.cos(np.pi * g)).astype(np.float32)
         z = sp_fft.ifft(sp_fft.fft(y) * gain)
-        g0 = self.guard if n > 4 * self.guard else 0
-        env = np.abs(z[g0 : n - g0] if g0 else z)
+        # Discard the filter's transients at both ends (the circular FFT filter wraps);
+        # a block too short for that is used whole.
+        g0 = self.guard if n > 3 * self.guard else 0
+        zz = z[g0 : n - g0] if g0 else z
+        # Signed envelope: the component in phase with the carrier (the block's mean
+        # phasor). It equals |z| for m <= 1 and goes negative when the modulation
+        # over-drives the carrier through zero, which |z| would fold back.
+        ref = complex(np.sum(zz))
+        if abs(ref) > 0:
+            env = (zz * (abs(ref) / ref)).real
+        else:
+            env = np.abs(zz)
         if env.size == 0:
             return
         self._hi = max(self._hi, float(np.quantile(env, 1.0 - self.q)))
