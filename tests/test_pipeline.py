@@ -203,3 +203,30 @@ def test_resolution_bounds() -> None:
     assert coarse.nfft == 16 and coarse.warnings
     fine = plan_pass(FS, 1 << 24, resolution_hz=1e-6)
     assert fine.nfft <= 1 << 22 and fine.warnings
+
+
+DEMOS = __import__("pathlib").Path(__file__).resolve().parent.parent / "recordings"
+
+
+@pytest.mark.skipif(not (DEMOS / "demos.json").exists(), reason="demo recordings not present")
+def test_demo_recordings_against_their_truth() -> None:
+    """The demo recordings' figures against the generator's analytic truth (recordings/demos.json)."""
+    from iqscope.io import open_recording
+
+    truth = json.loads((DEMOS / "demos.json").read_text())["recordings"]
+    cases = {
+        "dsb40m_bench": (AnalysisRequest(), {"carrier_suppression_db": 0.1, "sideband_balance_db": 0.05}),
+        "am80m_bench": (AnalysisRequest(), {"modulation_index": 0.01}),
+        "ssb20m_kit": (
+            AnalysisRequest(mode="usb", carrier_hz=1000.0),
+            {"carrier_suppression_db": 0.2, "opposite_sideband_suppression_db": 0.2, "occupied_bandwidth_hz": 5.0},
+        ),
+    }
+    for name, (req, figs) in cases.items():
+        meta = DEMOS / truth[name]["open"]
+        if not meta.exists():
+            continue
+        with open_recording(meta) as rec:
+            an = analyse(rec, req, providers=PROVIDERS[:6])
+        for key, tol in figs.items():
+            assert an.measurements[key].value == pytest.approx(truth[name]["truth"][key], abs=tol), (name, key)
