@@ -102,22 +102,32 @@ __all__ = [
     "envelope_modulation_index",
 ]
 
-# Modules written alongside (levels, tone estimation, Allan deviation): export when present.
-try:  # pragma: no cover - depends on the other modules being in the tree
-    from ._levels import LevelAccumulator, Levels, levels_of_blocks, power_to_dbfs
+# Modules written alongside: levels, single-tone estimation, Allan deviation.
+from ._allan import AllanResult, adev, frequency_to_phase, mdev, oadev  # noqa: E402
+from ._levels import LevelAccumulator, Levels, levels_of_blocks, power_to_dbfs  # noqa: E402
+from ._tone import (  # noqa: E402
+    LinePeak,
+    ToneEstimate,
+    crlb_frequency_std,
+    estimate_tone,
+    estimate_tones,
+    find_lines,
+)
 
-    __all__ += ["LevelAccumulator", "Levels", "levels_of_blocks", "power_to_dbfs"]
-except ImportError:  # pragma: no cover
-    pass
-try:  # pragma: no cover
-    from ._tone import LinePeak, ToneEstimate, crlb_frequency_std, estimate_tone, estimate_tones, find_lines
-
-    __all__ += ["LinePeak", "ToneEstimate", "crlb_frequency_std", "estimate_tone", "estimate_tones", "find_lines"]
-except ImportError:  # pragma: no cover
-    pass
-try:  # pragma: no cover
-    from ._allan import AllanResult, adev, frequency_to_phase, mdev, oadev
-
-    __all__ += ["AllanResult", "adev", "frequency_to_phase", "mdev", "oadev"]
-except ImportError:  # pragma: no cover
-    pass
+__all__ += [
+    "LevelAccumulator",
+    "Levels",
+    "levels_of_blocks",
+    "power_to_dbfs",
+    "LinePeak",
+    "ToneEstimate",
+    "crlb_frequency_std",
+    "estimate_tone",
+    "estimate_tones",
+    "find_lines",
+    "AllanResult",
+    "adev",
+    "frequency_to_phase",
+    "mdev",
+    "oadev",
+]
