@@ -76,7 +76,7 @@ def block_means(freq_hz: np.ndarray, block_n: int, parabolic: bool = False) -> n
     """Mean frequency of each whole block (what the tracker should see).
 
     With ``parabolic`` the mean is weighted as the least-squares slope of the phase
-    weights it: w_k ~ sum_{n > k} (n - mean n), a parabola (Kay 1989, "A fast and accurate
+    weights it: w_k ~ sum_{n > k} (n - mean n), a parabola (from memory: Kay 1989, "A fast and accurate
     single frequency estimator", IEEE Trans. ASSP 37(12), weighted phase-difference form);
     at high SNR the periodogram maximum equals that slope. For a linear drift both means
     agree.

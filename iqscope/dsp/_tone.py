@@ -19,9 +19,7 @@ References
 ----------
 .. [1] D. C. Rife and R. R. Boorstyn, "Single-tone parameter estimation from
    discrete-time observations", IEEE Trans. Inf. Theory, vol. IT-20, no. 5,
-   pp. 591-598, Sept. 1974.
-.. [2] E. Jacobsen and P. Kootsookos, "Fast, accurate frequency estimators",
-   IEEE Signal Processing Magazine, vol. 24, no. 3, pp. 123-125, May 2007.
+   pp. 591-598, Sept. 1974 (REFERENCES.md item 8).
 """
 
 from __future__ import annotations
@@ -283,7 +281,6 @@ def estimate_tones(
     References
     ----------
     .. [1] D. C. Rife and R. R. Boorstyn, IEEE Trans. Inf. Theory IT-20(5):591-598, 1974.
-    .. [2] E. Jacobsen and P. Kootsookos, IEEE Signal Process. Mag. 24(3):123-125, 2007.
     """
     fs = float(sample_rate_hz)
     if not (fs > 0 and math.isfinite(fs)):

@@ -625,9 +625,10 @@ class _Channel:
     References
     ----------
     .. [1] E. B. Hogenauer, "An economical class of digital filters for decimation and
-       interpolation", IEEE Trans. ASSP 29(2):155-162, 1981.
+       interpolation", IEEE Trans. ASSP 29(2):155-162, 1981 (citation from memory).
     .. [2] J. F. Kaiser, "Nonrecursive digital filter design using the I0-sinh window
-       function", Proc. IEEE ISCAS 1974, pp. 20-23 (``scipy.signal.kaiserord``).
+       function", Proc. IEEE ISCAS 1974, pp. 20-23 (from memory; the design rule is
+       ``scipy.signal.kaiserord``'s).
     """
 
     ORDER = 4
@@ -1091,7 +1092,7 @@ def _slope(t: npt.NDArray[np.float64], f: npt.NDArray[np.float64]) -> tuple[floa
     """OLS slope (Hz/s), intercept, standard error of the slope and lag-1 residual correlation.
 
     The standard error is inflated by sqrt((1 + rho) / (1 - rho)) for positively
-    correlated residuals (effective sample size of an AR(1) series; e.g. Bartlett 1946 /
+    correlated residuals (effective sample size of an AR(1) series; from memory:
     common practice in regression on time series).
     """
     n = t.size
