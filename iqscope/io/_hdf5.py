@@ -118,7 +118,7 @@ class HDF5Recording(Recording):
 
 def open_hdf5(req: OpenRequest) -> Recording:
     """Open an I/Q dataset of an HDF5 file."""
-    import h5py  # type: ignore[import-untyped]
+    import h5py
 
     path = req.path
     if file_size(path) == 0:
