@@ -98,7 +98,31 @@ def dsb_measurements(carrier_db: float, *, noise_limited: bool = False) -> dict[
         "noise_floor_dbfs_per_hz": Measurement(value=-120.0, unit="dBFS/Hz", uncertainty=0.1, note="median"),
         "peak_dbfs": Measurement(value=-6.02, unit="dBFS", uncertainty=None, note="|x|^2 max"),
         "clipped_fraction": Measurement(value=0.0, unit="1", uncertainty=None, note="samples at full scale"),
+        "worst_spur_dbc": spur_measurement(),
     }
+
+
+def spur_measurement(level_dbc: float = -61.3) -> Measurement:
+    """A spur 16 kHz above the carrier (spurious domain: beyond 2.5 x 6 kHz, SM.1539) and
+    the receiver's DC line at the capture centre (out-of-band domain, flagged)."""
+    spurs = [
+        {"offset_hz": 0.0, "frequency_hz": CENTER, "level_dbc": -52.0, "level_dbm": None,
+         "uncertainty_db": 0.1, "domain": "out-of-band", "artefact": "dc"},
+        {"offset_hz": CARRIER + 16_000.0, "frequency_hz": CENTER + CARRIER + 16_000.0, "level_dbc": level_dbc,
+         "level_dbm": None, "uncertainty_db": 0.4, "domain": "spurious", "artefact": None},
+    ]
+    return Measurement(
+        value=level_dbc,
+        unit="dBc",
+        uncertainty=0.4,
+        note="strongest line in the spurious domain, re mean power of the fundamental",
+        details={
+            "spurs": spurs,
+            "necessary_bandwidth_hz": 6_000.0,
+            "spurious_boundary_hz": 15_000.0,
+            "searched_spurious_hz": 14_580.0,
+        },
+    )
 
 
 def dsb_analysis(

@@ -186,3 +186,16 @@ def test_combined_profiles_later_rules_replace_earlier() -> None:
     # the later generic rule replaces the preset's mode-specific one
     assert over.rule_for("carrier_suppression_db", "dsb").pass_bound.min == 60.0
     assert over.origin == "m.toml"
+
+
+def test_home_built_spur_limit_is_97_307_d() -> None:
+    """47 CFR 97.307(d) (REFERENCES.md item 5): below 30 MHz every spurious emission at
+    least 43 dB below the mean power of the fundamental -> pass <= -43 dBc in every mode.
+    The warn band above it is common practice and must not reach above -30 dBc (the
+    pre-2003 rule's floor for transmitters under 5 W)."""
+    for mode in MODES:
+        rule = _rule("home-built", "worst_spur_dbc", mode)
+        assert rule.pass_bound.max == -43.0 and rule.pass_bound.min is None
+        assert rule.unit == "dBc" and "97.307(d)" in rule.source
+        assert rule.warn_bound is not None and -43.0 < rule.warn_bound.max <= -30.0
+    assert "97.307(d)" in preset_text("home-built")

@@ -216,3 +216,23 @@ def test_plots_survive_silence_and_nan() -> None:
         b = replace(a, spectrum=replace(a.spectrum, psd=psd), traces={})
         pngs = render_plots(grade(b))
         assert pngs["spectrum"].startswith(PNG_MAGIC)
+
+
+def test_html_shows_spur_table_bounds_and_designator() -> None:
+    """The spur table (receiver artefacts marked), noise-limited values as bounds
+    (DESIGN.md section 3) and the emission designator beside the necessary bandwidth."""
+    from grading_helpers import dsb_measurements
+
+    from iqscope.measure._result import Measurement
+
+    ms = dsb_measurements(62.7, noise_limited=True)
+    ms["necessary_bandwidth_hz"] = Measurement(2100.0, "Hz", 2.6, details={"designator": "2K10A3E"})
+    html = render_html([grade(dsb_analysis(62.7, measurements=ms, spectrum=False, with_traces=False))], generated="x")
+    p = _Collector()
+    p.feed(html)
+    text = " ".join(p.text)
+    assert "≥ 62 dB (noise-limited)" in text
+    assert "2.100 ± 0.003 kHz (2K10A3E)" in text
+    assert "Spurs" in text and '<table class="spurs">' in html
+    assert '<tr class="receiver"><td class="line">7.100000 MHz</td>' in html
+    assert "receiver DC offset" in text and "+16.000 kHz" in text and "-61.3 ± 0.4 dBc" in text

@@ -90,7 +90,10 @@ def test_format_frequency() -> None:
 def test_format_limit() -> None:
     assert format_limit(40.0, None, 30.0, None, "dB") == "≥ 40 dB (warn ≥ 30 dB)"
     assert format_limit(None, 3000.0, None, 3500.0, "Hz") == "≤ 3 kHz (warn ≤ 3.5 kHz)"
-    assert format_limit(-1.0, 1.0, unit="dB") == "-1 .. 1 dB"
+    assert format_limit(-1.0, 1.0, unit="dB") == "±1 dB"  # symmetric about zero
+    assert format_limit(-1.0, 1.0, -3.0, 3.0, unit="dB", ascii_only=True) == "+/-1 dB (warn +/-3 dB)"
+    assert format_limit(-2.0, 1.0, unit="dB") == "-2 .. 1 dB"
+    assert format_limit(None, 0.005, unit="W") == "≤ 5 mW"
     assert format_limit(None, 0.95, unit="1") == "≤ 0.95"
     assert format_limit(40.0, None, unit="dB", ascii_only=True) == ">= 40 dB"
 
@@ -99,7 +102,24 @@ def test_durations_counts_rates() -> None:
     assert format_duration(9.87) == "9.87 s"
     assert format_duration(10.0) == "10 s"
     assert format_duration(125.0) == "2 min 05 s"
+    assert format_duration(120.0) == "2 min"
+    assert format_duration(3600.0) == "1 h"
     assert format_duration(3725.0) == "1 h 02 min"
     assert format_count(480000) == "480 000"
     assert format_rate(48000.0) == "48 kS/s"
     assert format_rate(2.4e6) == "2.4 MS/s"
+
+
+def test_watts_take_a_prefix_never_a_rounded_zero() -> None:
+    """SI prefixes (BIPM SI Brochure, 9th ed. 2019, Table 7): 0.5 mW is 500 µW, never
+    "0.001 W"; 1 mW = +0 dBm and 5 W = +37 dBm (REFERENCES.md item 11, computed)."""
+    assert format_value(5e-4, "W") == "500 µW"
+    assert format_value(5e-4, "W", 6e-5) == "500 ± 60 µW"
+    assert format_value(5e-4, "W", ascii_only=True) == "500 uW"
+    assert format_value(10 ** (0.0 / 10) * 1e-3, "W") == "1.00 mW"  # 0 dBm
+    assert format_value(10 ** (-1e-7 / 10) * 1e-3, "W") == "1.00 mW"  # not "1000 µW"
+    assert format_value(10 ** (37.0 / 10) * 1e-3, "W") == "5.01 W"  # +37 dBm
+    assert format_value(5.0, "W", 0.58) == "5.0 ± 0.6 W"
+    assert format_value(1.2e-7, "W") == "120 nW"
+    assert format_value(2000.0, "W") == "2.00 kW"
+    assert format_measurement("pep_w", 0.012, "W", 0.0014) == "12.0 ± 1.4 mW"

@@ -16,13 +16,12 @@ from typing import Final
 from .. import __version__
 from ..grading import GradeResult
 from ._plots import PLOT_NAMES
-from ._text import SAFETY_POINTS, _limit_text, label
+from ._text import SAFETY_POINTS, _limit_text, label, measurement_text, spur_caption, spur_rows
 from ._theme import verdict_label
 from ._units import (
     format_count,
     format_duration,
     format_frequency,
-    format_measurement,
     format_rate,
 )
 
@@ -57,6 +56,8 @@ dl.facts dt { font-weight: 600; } dl.facts dd { margin: 0; overflow-wrap: anywhe
 table { border-collapse: collapse; width: 100%; font-size: 0.95rem; }
 th, td { text-align: left; padding: 0.35rem 0.5rem; border-bottom: 1px solid var(--line); vertical-align: top; }
 td.value { text-align: right; white-space: nowrap; font-variant-numeric: tabular-nums; }
+td.bound { font-style: italic; }
+table.spurs { font-size: 0.85rem; } table.spurs tr.receiver td { color: #6c3483; }
 td.limit { white-space: pre-line; }
 td.verdict { white-space: nowrap; font-weight: 700; }
 td.verdict.pass { color: var(--pass); } td.verdict.warn { color: var(--warn); }
@@ -79,6 +80,17 @@ footer { color: var(--muted); font-size: 0.8rem; margin-top: 2rem; }
   table.verdicts td.verdict { order: 1; text-align: right; }
   table.verdicts td.value { order: 2; text-align: left; }
   table.verdicts td.limit { order: 3; text-align: right; color: var(--muted); }
+  table.spurs thead { display: none; }
+  table.spurs tr { display: grid; grid-template-columns: 1fr auto; column-gap: 0.5rem;
+                   border-bottom: 1px solid var(--line); padding: 0.3rem 0; }
+  table.spurs td { border: none; padding: 0.05rem 0.2rem; }
+  table.spurs td.line { order: 0; font-weight: 600; }
+  table.spurs td.level { order: 1; text-align: right; font-weight: 600; }
+  table.spurs td.rel { order: 2; text-align: left; }
+  table.spurs td.rel:not(:empty)::after { content: " from the carrier"; color: var(--muted); }
+  table.spurs td.domain { order: 3; text-align: right; color: var(--muted); }
+  table.spurs td.what { order: 4; grid-column: 1 / -1; }
+  table.spurs td.what:empty { display: none; }
 }
 """
 
@@ -117,19 +129,16 @@ def _table(result: GradeResult) -> str:
     shown: set[str] = set()
     for name, m in result.analysis.measurements.items():
         v = result.verdict_for(name)
-        value = format_measurement(
-            name, m.value, m.unit, m.uncertainty, limited_by_noise=m.limited_by_noise, bound=m.bound
-        )
-        rows.append(_row(name, value, v, m.note))
+        rows.append(_row(label(name, m), measurement_text(name, m), v, m.note, bound=m.limited_by_noise))
         shown.add(name)
     for v in result.verdicts:
         if v.measurement not in shown:
-            rows.append(_row(v.measurement, "not measured", v, ""))
+            rows.append(_row(label(v.measurement), "not measured", v, ""))
     head = "<tr><th>measurement</th><th>value</th><th>limit</th><th>verdict</th></tr>"
     return f'<div class="table-wrap"><table class="verdicts"><thead>{head}</thead><tbody>{"".join(rows)}</tbody></table></div>'
 
 
-def _row(name: str, value: str, v: object, note: str) -> str:
+def _row(name: str, value: str, v: object, note: str, *, bound: bool = False) -> str:
     from ..grading import Verdict
 
     assert v is None or isinstance(v, Verdict)
@@ -139,9 +148,32 @@ def _row(name: str, value: str, v: object, note: str) -> str:
         word += " (inconclusive)"
     limit = "" if v is None else _limit_text(v.rule, False)
     title = f' title="{escape(note)}"' if note else ""
+    value_class = "value bound" if bound else "value"
     return (
-        f'<tr><td class="name"{title}>{escape(label(name))}</td><td class="value">{escape(value)}</td>'
+        f'<tr><td class="name"{title}>{escape(name)}</td><td class="{value_class}">{escape(value)}</td>'
         f'<td class="limit">{escape(limit)}</td><td class="verdict {status}">{escape(word)}</td></tr>'
+    )
+
+
+def _spurs(result: GradeResult) -> str:
+    """The spur table of ``worst_spur_dbc`` (empty when it lists no line)."""
+    rows, left = spur_rows(result)
+    if not rows:
+        return ""
+    head = "<tr><th>line</th><th>re carrier</th><th>level</th><th>domain</th><th>what</th></tr>"
+    body = []
+    for where, rel, level, domain, what in rows:
+        cls = ' class="receiver"' if what.startswith("receiver") else ""
+        body.append(
+            f'<tr{cls}><td class="line">{escape(where)}</td><td class="value rel">{escape(rel)}</td>'
+            f'<td class="value level">{escape(level)}</td><td class="domain">{escape(domain)}</td>'
+            f'<td class="what">{escape(what)}</td></tr>'
+        )
+    more = f'<p class="meta">... and {left} weaker line{"s" if left > 1 else ""} (all in the JSON output)</p>' if left else ""
+    return (
+        f'<h3>Spurs</h3><p class="meta">{escape(spur_caption(result))}</p>'
+        f'<div class="table-wrap"><table class="spurs"><thead>{head}</thead><tbody>{"".join(body)}</tbody></table></div>'
+        f"{more}"
     )
 
 
@@ -209,7 +241,7 @@ def render_html(
         badge = f'<span class="badge {r.overall}">{escape(verdict_label(r.overall))}</span>'
         sections.append(
             f'<section class="recording"><h2>{escape(name)} {badge}</h2>'
-            f"{_facts(r)}{_table(r)}{_notes(r)}{_figures(r, pngs)}</section>"
+            f"{_facts(r)}{_table(r)}{_spurs(r)}{_notes(r)}{_figures(r, pngs)}</section>"
         )
     overall = "pass"
     for r in results:

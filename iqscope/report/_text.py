@@ -9,6 +9,7 @@ Sections of a graded recording: :func:`render_header` (recording, mode, carrier,
 from __future__ import annotations
 
 import contextlib
+import math
 from collections.abc import Callable, Iterator, Mapping, Sequence
 from typing import Final
 
@@ -19,6 +20,7 @@ from rich.text import Text
 
 from ..grading import GradeResult, LimitsProfile, Verdict
 from ..grading._limits import Rule
+from ..measure._result import Measurement
 from ._theme import is_ascii, verdict_label, verdict_style
 from ._units import (
     format_count,
@@ -27,6 +29,8 @@ from ._units import (
     format_limit,
     format_measurement,
     format_rate,
+    ge_le,
+    format_value,
 )
 
 __all__ = [
@@ -34,6 +38,10 @@ __all__ = [
     "CAUTION",
     "SAFETY_POINTS",
     "label",
+    "measurement_text",
+    "spur_rows",
+    "spur_caption",
+    "render_spur_table",
     "render_header",
     "render_verdict_table",
     "render_notes",
@@ -45,36 +53,46 @@ __all__ = [
     "progress_reporter",
 ]
 
-#: Readable names of the stable measurement keys.
+#: Readable names of the measurement keys (every key the pipeline produces).
 LABELS: Final[Mapping[str, str]] = {
+    # carrier and sidebands
     "carrier_suppression_db": "carrier suppression",
     "carrier_below_pep_db": "carrier below PEP",
     "opposite_sideband_suppression_db": "opposite sideband",
     "sideband_balance_db": "sideband balance",
     "modulation_index": "modulation index",
+    # bandwidth
     "occupied_bandwidth_hz": "99 % bandwidth",
     "bandwidth_26db_hz": "-26 dB bandwidth",
+    "necessary_bandwidth_hz": "necessary bandwidth",
+    # two-tone test
     "imd3_dbc": "IMD3 (re one tone)",
     "imd5_dbc": "IMD5 (re one tone)",
+    "imd7_dbc": "IMD7 (re one tone)",
     "imd3_db_pep": "IMD3 (re PEP)",
+    "imd5_db_pep": "IMD5 (re PEP)",
+    "imd7_db_pep": "IMD7 (re PEP)",
+    "tone_balance_db": "tone balance",
+    # spurs and harmonics
+    "worst_spur_dbc": "worst spur",
+    "worst_harmonic_dbc": "worst harmonic",
+    # power (with a calibration)
+    "mean_power_dbm": "mean power",
+    "mean_power_w": "mean power",
+    "pep_dbm": "PEP",
+    "pep_w": "PEP",
+    # frequency and its stability
     "frequency_offset_hz": "frequency offset",
-    "drift_hz_per_min": "drift",
+    "frequency_error_hz": "frequency error",
+    "drift_hz_per_min": "drift rate",
     "drift_peak_to_peak_hz": "drift peak-to-peak",
-    "drift_worst_window_hz": "drift in window",
+    "drift_worst_window_hz": "worst drift in window",
+    "warmup_settling_s": "warm-up settling",
+    "allan_deviation": "Allan deviation",
+    # the recording
     "noise_floor_dbfs_per_hz": "noise floor",
     "peak_dbfs": "peak level",
     "clipped_fraction": "clipped samples",
-    "worst_spur_dbc": "worst spur",
-    "necessary_bandwidth_hz": "necessary bandwidth",
-    "imd5_db_pep": "IMD5 (re PEP)",
-    "imd7_dbc": "IMD7 (re one tone)",
-    "imd7_db_pep": "IMD7 (re PEP)",
-    "tone_balance_db": "tone balance",
-    "frequency_offset_hz": "frequency offset",
-    "warmup_settling_s": "warm-up time",
-    "allan_deviation": "Allan deviation",
-    "mean_power_dbm": "mean power",
-    "pep_dbm": "PEP",
 }
 
 #: One-line caution under every text report.
@@ -99,9 +117,56 @@ SAFETY_POINTS: Final = (
 )
 
 
-def label(name: str) -> str:
-    """The readable name of a measurement key."""
-    return LABELS.get(name, name.replace("_", " "))
+def label(name: str, m: Measurement | None = None, *, ascii_only: bool = False) -> str:
+    """The readable name of a measurement key; with ``m``, what its details qualify.
+
+    ``drift_worst_window_hz`` names its window (``"worst 2-min drift"``).
+    """
+    text = LABELS.get(name, name.replace("_", " "))
+    details = {} if m is None else m.details
+    if name == "drift_worst_window_hz":
+        window = _number(details.get("window_s"))
+        if window is not None and window > 0:
+            minutes = window / 60.0
+            span = f"{minutes:g}-min" if window >= 60 and minutes == round(minutes) else f"{window:g}-s"
+            text = f"worst {span} drift"
+    return text
+
+
+def _number(x: object) -> float | None:
+    if isinstance(x, bool) or not isinstance(x, (int, float)):
+        return None
+    return float(x) if math.isfinite(x) else None
+
+
+def measurement_text(name: str, m: Measurement, *, ascii_only: bool = False) -> str:
+    """The value cell of one measurement: value ± uncertainty, or the noise-limited bound
+    (``"≥ 62 dB (noise-limited)"``, ``"≤ -88 dBc (noise-limited)"``), with what the details
+    add: the emission designator beside ``necessary_bandwidth_hz`` (``"2.40 kHz (2K40J3E)"``)
+    and the averaging time of ``allan_deviation`` (``"(1.4 ± 0.2)e-07 at τ = 8 s"``).
+    """
+    text = format_measurement(
+        name,
+        m.value,
+        m.unit,
+        m.uncertainty,
+        limited_by_noise=m.limited_by_noise,
+        bound=m.bound,
+        ascii_only=ascii_only,
+    )
+    if name == "necessary_bandwidth_hz" and m.value is not None:
+        designator = m.details.get("designator")
+        if isinstance(designator, str) and designator:
+            text += f" ({designator})"
+    if name == "warmup_settling_s" and m.value is None:
+        still = _number(m.details.get("lower_bound_s"))
+        if still is not None and still > 0:
+            text = f"> {format_duration(still)} (not settled)"
+    if name == "allan_deviation" and m.value is not None:
+        tau = _number(m.details.get("tau_quoted_s"))
+        if tau is not None and tau > 0:
+            text += f" at {'tau' if ascii_only else chr(0x3C4)} = {format_duration(tau)}"
+    return text
 
 
 def _modes_text(mode: str) -> str:
@@ -173,20 +238,12 @@ def render_verdict_table(result: GradeResult, *, ascii_only: bool = False) -> Ta
     shown: set[str] = set()
     for name, m in result.analysis.measurements.items():
         v = result.verdict_for(name)
-        value = format_measurement(
-            name,
-            m.value,
-            m.unit,
-            m.uncertainty,
-            limited_by_noise=m.limited_by_noise,
-            bound=m.bound,
-            ascii_only=ascii_only,
-        )
-        _add_row(table, name, value, v, ascii_only, bound=m.limited_by_noise)
+        value = measurement_text(name, m, ascii_only=ascii_only)
+        _add_row(table, label(name, m, ascii_only=ascii_only), value, v, ascii_only, bound=m.limited_by_noise)
         shown.add(name)
     for v in result.verdicts:
         if v.measurement not in shown:
-            _add_row(table, v.measurement, "not measured", v, ascii_only, bound=False)
+            _add_row(table, label(v.measurement), "not measured", v, ascii_only, bound=False)
     return table
 
 
@@ -196,11 +253,159 @@ def _add_row(table: Table, name: str, value: str, v: Verdict | None, ascii_only:
     if v is not None and v.inconclusive and v.status == "warn":
         word += "?"
     table.add_row(
-        label(name),
+        name,
         Text(value, style="iqscope.bound" if bound else "iqscope.value"),
         Text(_limit_text(None if v is None else v.rule, ascii_only), style="iqscope.limit"),
         Text(word, style=verdict_style(status)),
     )
+
+
+#: Most lines the spur table shows (the JSON has them all).
+SPUR_ROWS_SHOWN: Final = 8
+#: Spur levels known better than this (1 sigma) are shown to 0.1 dB without "±".
+_LEVEL_STEP_DB: Final = 0.2
+
+
+def _signed_zero(x: float) -> str:
+    text = f"{x:.1f}"
+    return "0.0" if text == "-0.0" else text
+
+_ARTEFACT_WORDS: Final[Mapping[str, str]] = {
+    "dc": "receiver DC offset",
+    "dc_line": "receiver DC offset",
+    "iq_image": "receiver I/Q image",
+    "iq": "receiver I/Q image",
+}
+
+_MARKER_WORDS: Final[Mapping[str, str]] = {
+    "carrier": "carrier",
+    "tone1": "tone 1",
+    "tone2": "tone 2",
+    "sideband_lower": "lower sideband",
+    "sideband_upper": "upper sideband",
+}
+
+
+#: Markers of wanted lines, whose mirror about the carrier is the opposite sideband.
+_WANTED_LINES: Final = frozenset({"tone1", "tone2", "sideband_lower", "sideband_upper"})
+
+
+def _is_point_marker(name: str) -> bool:
+    """Markers of lines (carrier, tones, sidebands, IMD products), not of band edges."""
+    return name in _MARKER_WORDS or (name.startswith("imd") and "_" in name)
+
+
+def _marker_word(name: str) -> str:
+    if name in _MARKER_WORDS:
+        return _MARKER_WORDS[name]
+    if name.startswith("imd") and "_" in name:
+        order, side = name.split("_", 1)
+        return f"{order.upper()} {side}"
+    return name.replace("_", " ")
+
+
+def spur_rows(result: GradeResult, *, ascii_only: bool = False) -> tuple[list[tuple[str, str, str, str, str]], int]:
+    """The spur table of ``worst_spur_dbc`` (``details["spurs"]``) as display rows.
+
+    Each row: RF frequency (or offset from the capture centre when the centre is unknown),
+    offset from the carrier, level in dBc re the mean power (and dBm when calibrated), the
+    domain (out-of-band / spurious, SM.1539) and what the line is: a receiver artefact, or
+    a marker the pipeline placed at the same frequency (carrier, tone, IMD product).
+    Returns the first :data:`SPUR_ROWS_SHOWN` rows, strongest first, and how many were
+    left out. Renderers only look the numbers up; nothing is measured here.
+    """
+    a = result.analysis
+    m = a.measurements.get("worst_spur_dbc")
+    table = [] if m is None else m.details.get("spurs") or []
+    if not isinstance(table, (list, tuple)):
+        return [], 0
+    carrier = a.signal.carrier_offset_hz
+    tol = max(2.0 * a.spectrum.bin_hz, 1.0) if a.spectrum is not None else 1.0
+    markers = {k: v for k, v in a.markers.items() if _is_point_marker(k) and math.isfinite(v)}
+    if carrier is not None:
+        markers.setdefault("carrier", carrier)
+    rows: list[tuple[str, str, str, str, str]] = []
+    for line in table:
+        if not isinstance(line, Mapping):
+            continue
+        offset = _number(line.get("offset_hz"))
+        level = _number(line.get("level_dbc"))
+        if offset is None or level is None:
+            continue
+        rf = _number(line.get("frequency_hz"))
+        where = format_frequency(rf) if rf is not None else f"{format_frequency(offset)} (offset)"
+        rel = "" if carrier is None else format_frequency(float(round(offset - carrier)))
+        if rel and not rel.startswith("-") and rel != "0 Hz":
+            rel = "+" + rel
+        u = _number(line.get("uncertainty_db"))
+        if u is not None and u < _LEVEL_STEP_DB:
+            # Resolved to better than the 0.1 dB shown: no "± 0.05" in every row.
+            level_text = f"{_signed_zero(level)} dBc"
+        else:
+            level_text = format_value(level, "dBc", u, ascii_only=ascii_only)
+        dbm = _number(line.get("level_dbm"))
+        if dbm is not None:
+            level_text += f" ({format_value(dbm, 'dBm', None, ascii_only=ascii_only)})"
+        artefact = line.get("artefact")
+        if isinstance(artefact, str) and artefact:
+            what = _ARTEFACT_WORDS.get(artefact, f"receiver {artefact}")
+        else:
+            near = [_marker_word(k) for k, f in markers.items() if abs(f - offset) <= tol]
+            if not near and carrier is not None:
+                # The mirror of a wanted line about the carrier: the opposite sideband.
+                near = [
+                    f"{_marker_word(k)} opposite sideband"
+                    for k, f in markers.items()
+                    if k in _WANTED_LINES and abs(2.0 * carrier - f - offset) <= tol
+                ]
+            what = ", ".join(near)
+        rows.append((where, rel, level_text, str(line.get("domain") or ""), what))
+    left = max(0, len(rows) - SPUR_ROWS_SHOWN)
+    return rows[:SPUR_ROWS_SHOWN], left
+
+
+def spur_caption(result: GradeResult, *, ascii_only: bool = False) -> str:
+    """One line saying what the spur table lists and where the spurious domain starts."""
+    m = result.analysis.measurements.get("worst_spur_dbc")
+    details = {} if m is None else m.details
+    pm = ge_le(ascii_only)[2]
+    text = "lines outside the necessary band, levels re the mean power"
+    bn = _number(details.get("necessary_bandwidth_hz"))
+    edge = _number(details.get("spurious_boundary_hz"))
+    if bn is not None and edge is not None:
+        text += (
+            f"; spurious domain beyond {pm}{format_frequency(edge, 10.0)} of the emission centre "
+            f"(250 % of the {format_frequency(bn, 10.0)} necessary bandwidth, SM.1539)"
+        )
+        searched = _number(details.get("searched_spurious_hz"))
+        if searched is not None:
+            text += f", {format_frequency(searched, 10.0)} of it recorded"
+    return text
+
+
+def render_spur_table(result: GradeResult, *, ascii_only: bool = False) -> RenderableType | None:
+    """The spur table (None when ``worst_spur_dbc`` lists no line)."""
+    rows, left = spur_rows(result, ascii_only=ascii_only)
+    if not rows:
+        return None
+    table = Table(box=box.ASCII if ascii_only else box.SIMPLE_HEAD, pad_edge=False, expand=False, show_edge=False)
+    table.add_column("line", no_wrap=True)
+    table.add_column("re carrier", justify="right", no_wrap=True)
+    table.add_column("level", justify="right", no_wrap=True)
+    table.add_column("domain", no_wrap=True)
+    table.add_column("what")
+    for where, rel, level, domain, what in rows:
+        style = "iqscope.artefact" if what.startswith("receiver") else "iqscope.value"
+        table.add_row(where, rel, level, domain, Text(what, style=style))
+    parts: list[RenderableType] = [
+        Text("spurs", style="iqscope.label"),
+        Text(spur_caption(result, ascii_only=ascii_only), style="iqscope.muted"),
+        Text(""),
+        table,
+    ]
+    if left:
+        parts.append(Text(f"... and {left} weaker line{'s' if left > 1 else ''} (all in --json)", style="iqscope.muted"))
+    return Group(*parts)
 
 
 def _bullets(items: Sequence[str], style: str, bullet: str) -> Table:
@@ -254,6 +459,10 @@ def print_grade(result: GradeResult, console: Console) -> None:
     console.print(render_header(result, ascii_only=ascii_only))
     console.print()
     console.print(render_verdict_table(result, ascii_only=ascii_only))
+    spurs = render_spur_table(result, ascii_only=ascii_only)
+    if spurs is not None:
+        console.print(spurs)
+        console.print()
     console.print(render_notes(result, ascii_only=ascii_only))
     console.print()
     console.print(render_caution())

@@ -6,7 +6,10 @@ when the leading digit is 1), and the value to the same decimal place (GUM, JCGM
 used. A noise-limited bound is rounded *outwards* (a lower bound down, an upper bound
 up) so that the printed bound is still true, and shown as ``">= 62 dB (noise-limited)"``.
 
-Frequencies in Hz are scaled to Hz / kHz / MHz / GHz by their size.
+Frequencies in Hz are scaled to Hz / kHz / MHz / GHz by their size, powers in W to
+kW / W / mW / µW / nW (``0.5 mW`` is never printed as ``0.001 W``). Values of other units
+smaller than 1e-3 (an Allan deviation, a drift of micro-hertz per minute) are printed in
+scientific notation.
 
 References
 ----------
@@ -35,6 +38,10 @@ _LOG_UNITS: Final = frozenset({"dB", "dBc", "dBFS", "dBFS/Hz", "dBm", "dB PEP", 
 _MAX_DECIMALS: Final = {"dB": 2, "Hz": 3, "1": 4, "Hz/min": 3, "Hz/s": 4, "s": 3, "ppm": 4}
 _DEFAULT_DECIMALS: Final = {"dB": 1, "1": 3, "Hz/min": 2, "Hz/s": 3, "s": 1, "ppm": 3}
 _SI: Final = ((1e9, "G"), (1e6, "M"), (1e3, "k"), (1.0, ""))
+#: Prefixes of a power in watts (a sampled transmitter: kilowatts down to nanowatts).
+_SI_POWER: Final = ((1e3, "k"), (1.0, ""), (1e-3, "m"), (1e-6, "\u00b5"), (1e-9, "n"))
+#: Units scaled by an SI prefix (watts are never shown in scientific notation).
+_SCALED: Final = frozenset({"Hz", "W"})
 #: Below this magnitude (non-dB units) numbers are shown in scientific notation.
 _TINY: Final = 1e-3
 
@@ -63,13 +70,33 @@ def _uncertainty_decimals(u: float) -> int:
     return -exponent + sig - 1
 
 
-def _si_scale(unit: str, magnitude: float) -> tuple[float, str]:
+def _si_scale(unit: str, magnitude: float, ascii_only: bool = False) -> tuple[float, str]:
+    """Factor and prefixed unit for ``magnitude`` (Hz: Hz..GHz; W: nW..kW; others as is)."""
+    if unit == "W":
+        if magnitude == 0.0 or not math.isfinite(magnitude):
+            return 1.0, "W"
+        # Compared after rounding to 3 significant digits, so 0.99999 mW (from a dB
+        # conversion) reads 1.00 mW, not 1000 µW.
+        rounded = float(f"{magnitude:.3g}")
+        for factor, prefix in _SI_POWER:
+            if rounded >= factor:
+                break
+        if ascii_only:
+            prefix = prefix.replace("\u00b5", "u")
+        return factor, f"{prefix}W"
     if unit != "Hz":
         return 1.0, unit
     for factor, prefix in _SI:
         if magnitude >= factor:
             return factor, f"{prefix}Hz"
     return 1.0, "Hz"
+
+
+def _significant_decimals(v: float, digits: int = 3) -> int:
+    """Decimal places that show ``v`` with ``digits`` significant digits (at least 0)."""
+    if v == 0.0 or not math.isfinite(v):
+        return 0
+    return max(0, digits - 1 - math.floor(math.log10(abs(v))))
 
 
 def _suffix(unit: str) -> str:
@@ -83,14 +110,16 @@ def format_value(
     *,
     ascii_only: bool = False,
 ) -> str:
-    """``"37.6 ± 0.2 dB"``, ``"2.100 ± 0.015 kHz"``, ``"0.63"`` or ``"not measured"``.
+    """``"37.6 ± 0.2 dB"``, ``"2.100 ± 0.015 kHz"``, ``"0.50 ± 0.06 mW"``, ``"0.63"`` or
+    ``"not measured"``.
 
     Parameters
     ----------
     value : float or None
         The value in ``unit`` (None: not measured).
     unit : str
-        Unit symbol; ``"Hz"`` is scaled to kHz / MHz, ``"1"`` prints no unit.
+        Unit symbol; ``"Hz"`` is scaled to kHz / MHz, ``"W"`` to mW / µW / kW, ``"1"``
+        prints no unit.
     uncertainty : float, optional
         1-sigma uncertainty in ``unit``; sets the digits shown.
     """
@@ -99,14 +128,16 @@ def format_value(
     _, _, pm = ge_le(ascii_only)
     family = _family(unit)
     u = uncertainty if uncertainty is not None and math.isfinite(uncertainty) and uncertainty > 0 else None
-    if family != "dB" and value != 0.0 and abs(value) < _TINY:
+    if family != "dB" and unit != "W" and value != 0.0 and abs(value) < _TINY:
         return _scientific(value, u, unit, pm)
-    factor, shown_unit = _si_scale(unit, abs(value) if value != 0 else (u or 0.0))
+    factor, shown_unit = _si_scale(unit, abs(value) if value != 0 else (u or 0.0), ascii_only)
     v = value / factor
     max_dec = _MAX_DECIMALS.get(family, 3) + (round(math.log10(factor)) if unit == "Hz" else 0)
     if u is None:
         if unit == "Hz":
             dec = 0 if factor == 1.0 else min(max_dec, 3)
+        elif unit == "W":
+            dec = _significant_decimals(float(f"{v:.3g}"))
         else:
             dec = _DEFAULT_DECIMALS.get(family, 3)
         return f"{_fixed(v, dec)}{_suffix(shown_unit)}"
@@ -146,12 +177,12 @@ def format_bound(value: float, unit: str, bound: str | None, *, ascii_only: bool
     ge, le, _ = ge_le(ascii_only)
     sign = le if bound == "upper" else ge
     family = _family(unit)
-    if family != "dB" and value != 0.0 and abs(value) < _TINY:
+    if family != "dB" and unit != "W" and value != 0.0 and abs(value) < _TINY:
         exponent = math.floor(math.log10(abs(value)))
         m = value / 10.0**exponent
         m = math.ceil(m * 10 - 1e-9) / 10 if bound == "upper" else math.floor(m * 10 + 1e-9) / 10
         return f"{sign} {m:.1f}e{exponent:+03d}{_suffix(unit)} (noise-limited)"
-    factor, shown_unit = _si_scale(unit, abs(value))
+    factor, shown_unit = _si_scale(unit, abs(value), ascii_only)
     v = value / factor
     if family == "dB":
         dec = 0
@@ -205,8 +236,8 @@ def format_frequency(hz: float | None, resolution_hz: float = 1.0) -> str:
     return f"{_fixed(hz / factor, dec)} {unit}"
 
 
-def _limit_number(x: float, unit: str) -> str:
-    factor, shown = _si_scale(unit, abs(x))
+def _limit_number(x: float, unit: str, ascii_only: bool = False) -> str:
+    factor, shown = _si_scale(unit, abs(x), ascii_only)
     return f"{x / factor:g}{_suffix(shown)}"
 
 
@@ -219,17 +250,20 @@ def format_limit(
     *,
     ascii_only: bool = False,
 ) -> str:
-    """``"≥ 40 dB (warn ≥ 30 dB)"``, ``"≤ 3 kHz (warn ≤ 3.5 kHz)"``, ``"-1 .. 1 dB"``."""
-    ge, le, _ = ge_le(ascii_only)
+    """``"≥ 40 dB (warn ≥ 30 dB)"``, ``"≤ 3 kHz (warn ≤ 3.5 kHz)"``, ``"-2 .. 1 dB"``;
+    a range symmetric about zero reads ``"±1 dB"``."""
+    ge, le, pm = ge_le(ascii_only)
 
     def one(lo: float | None, hi: float | None) -> str:
         if lo is not None and hi is not None:
-            lo_text = f"{lo:g}" if unit != "Hz" else _limit_number(lo, unit)
-            return f"{lo_text} .. {_limit_number(hi, unit)}"
+            if hi > 0 and lo == -hi:
+                return f"{pm}{_limit_number(hi, unit, ascii_only)}"
+            lo_text = f"{lo:g}" if unit not in _SCALED else _limit_number(lo, unit, ascii_only)
+            return f"{lo_text} .. {_limit_number(hi, unit, ascii_only)}"
         if lo is not None:
-            return f"{ge} {_limit_number(lo, unit)}"
+            return f"{ge} {_limit_number(lo, unit, ascii_only)}"
         if hi is not None:
-            return f"{le} {_limit_number(hi, unit)}"
+            return f"{le} {_limit_number(hi, unit, ascii_only)}"
         return "any"
 
     text = one(pass_min, pass_max)
@@ -239,15 +273,16 @@ def format_limit(
 
 
 def format_duration(seconds: float) -> str:
-    """``9.87`` -> ``"9.87 s"``, ``125`` -> ``"2 min 05 s"``, ``3725`` -> ``"1 h 02 min"``."""
+    """``9.87`` -> ``"9.87 s"``, ``125`` -> ``"2 min 05 s"``, ``120`` -> ``"2 min"``,
+    ``3725`` -> ``"1 h 02 min"``."""
     if not math.isfinite(seconds) or seconds < 0:
         return "unknown"
     if seconds < 60:
         return f"{seconds:.3g} s"
     total = round(seconds)
     if total < 3600:
-        return f"{total // 60} min {total % 60:02d} s"
-    return f"{total // 3600} h {(total % 3600) // 60:02d} min"
+        return f"{total // 60} min" + (f" {total % 60:02d} s" if total % 60 else "")
+    return f"{total // 3600} h" + (f" {(total % 3600) // 60:02d} min" if (total % 3600) // 60 else "")
 
 
 def format_count(n: int) -> str:
