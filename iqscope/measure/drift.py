@@ -47,6 +47,7 @@ from scipy import signal
 from scipy.signal import windows
 
 from ..dsp._allan import AllanResult, oadev
+from ..dsp._spectrum import SubbandCapture, subband_decimation
 from ..dsp._tone import LinePeak, ToneEstimate, Window, estimate_tones, find_lines
 from ..dsp._types import Spectrum
 from ..errors import MeasurementError, UsageError
@@ -79,6 +80,8 @@ __all__ = [
     "NOTE_RELATIVE",
     "NOTE_INCLUDES_RECEIVER",
     "DEFAULT_SETTLE_BAND_HZ",
+    "plan_capture",
+    "track_bands",
 ]
 
 #: Sentence closing each note: with a stable reference line ...
@@ -106,6 +109,13 @@ MIN_BLOCKS = 8
 _BLOCK_CHOICES = tuple(2.0**k for k in range(-7, 4))  # 1/128 s .. 8 s
 #: ADEV is quoted at the octave tau nearest this, s.
 ADEV_QUOTE_TAU_S = 10.0
+#: Lowest rate of a band captured during the pipeline's pass, Hz: at least 8 channel
+#: half-widths (H = 110 Hz for the default span) so the tracker's own channel decimates.
+CAPTURE_RATE_HZ = 1600.0
+#: At most this many lines get a captured band, strongest first.
+CAPTURE_LINES = 4
+#: Memory for captured bands, bytes (complex64 at CAPTURE_RATE_HZ: 46 MB per line-hour).
+CAPTURE_BYTES = 96 << 20
 
 
 # --------------------------------------------------------------------------------------
@@ -924,6 +934,190 @@ class LineTracker:
         )
 
 
+class _LeftBand(Exception):
+    """A followed line is not (or no longer) well inside its captured band."""
+
+
+class _BandTracker(LineTracker):
+    """:class:`LineTracker` on bands captured during the pipeline's pass.
+
+    Each followed line (and the stable line) has its own input stream: a
+    :class:`~iqscope.dsp._spectrum.SubbandCapture` of the recording, mixed down by the band's
+    centre and decimated to its rate. Each line's channel (the same CIC-less Kaiser
+    stage as :class:`_Channel`, now at the band's rate) is built and re-centred inside
+    that stream; estimates are converted back to recording frequencies, and the noise
+    and SNR to per-sample figures at the recording's rate.
+    """
+
+    def __init__(self, bands: Sequence[SubbandCapture], plan: LinePlan, *, block_s: float,
+                 span_hz: float | None, stable_hz: float | None, stable_is_absolute: bool,
+                 window: Window | None, center_frequency_hz: float | None) -> None:
+        rate = bands[0].sample_rate_hz
+        super().__init__(rate, plan, block_s=block_s, span_hz=span_hz, stable_hz=stable_hz,
+                         stable_is_absolute=stable_is_absolute, window=window,
+                         center_frequency_hz=center_frequency_hz)
+        starts = list(plan.lines_hz) + ([stable_hz] if stable_hz is not None else [])
+        self._offsets = [b.centre_hz for b in bands]
+        self._pass_decim = bands[0].decimation
+        # flat part of each band: a main-lobe half-width (4 bins) plus one inside its edges
+        self._flat_hz = [0.5 * b.sample_rate_hz - 5.0 * b.bin_hz for b in bands]
+        self._channels = [_Channel(rate, c - o, self.span_hz, self.block_s) for c, o in zip(starts, self._offsets)]
+        for ch, flat in zip(self._channels, self._flat_hz):
+            self._check(ch, flat)
+        self._histories: list[npt.NDArray[np.complex64] | None] = [None] * len(self._channels)
+        self.delay_s = max(ch.delay_s for ch in self._channels)
+
+    @staticmethod
+    def _check(ch: _Channel, flat_hz: float) -> None:
+        if ch.decim == 1 or abs(ch.mix_hz) + 2.0 * ch.half_band_hz > flat_hz:
+            raise _LeftBand()
+
+    def process_blocks(self, blocks: Sequence[npt.NDArray[np.complex64]]) -> BlockEstimate:
+        """Measure one block of every band (same times, ``block_n`` samples each)."""
+        centres: list[float] = list(self._centres)
+        if self._stable_centre is not None:
+            centres.append(self._stable_centre)
+        done: list[ToneEstimate] = []
+        d = self._pass_decim
+        for i, ch in enumerate(self._channels):
+            block, off, hist = blocks[i], self._offsets[i], self._histories[i]
+            ext = block if hist is None else np.concatenate((hist, block))
+            y = ch.output(ext)
+            if y.size < 8:
+                raise ValueError("block too short for the channel decimator")
+            e = estimate_tones(y, ch.rate_hz, [ch.to_channel(centres[i] - off)], span_hz=self.span_hz,
+                               window=self.window,
+                               noise_band_hz=(ch.to_channel(ch.mix_hz), ch.half_band_hz))[0]
+            f_loc = ch.from_channel(e.frequency_hz)
+            amp = e.amplitude / ch.response(f_loc)
+            noise = e.noise_power * ch.decim * d  # per sample at the recording's rate
+            done.append(replace(e, frequency_hz=f_loc + off, amplitude=amp, noise_power=noise,
+                                snr=amp * amp / noise, n_samples=block.size * d))
+            if e.detected:
+                ch.follow(f_loc)
+                self._check(ch, self._flat_hz[i])
+            if ch.history_samples:
+                self._histories[i] = block[max(0, block.size - ch.history_samples):].copy()
+        n_lines = len(self._centres)
+        line_ests = tuple(done[:n_lines])
+        stable = done[n_lines] if self._stable_centre is not None else None
+        if all(e.detected for e in line_ests):
+            self._centres = [e.frequency_hz for e in line_ests]
+        if stable is not None and stable.detected:
+            self._stable_centre = stable.frequency_hz
+        i = len(self._blocks)
+        est = BlockEstimate(i, (i + 0.5) * self.block_s - self.delay_s, line_ests, stable, None)
+        self._blocks.append(est)
+        return est
+
+
+def track_bands(
+    bands: Sequence[SubbandCapture],
+    plan: LinePlan,
+    *,
+    block_s: float,
+    span_hz: float | None = None,
+    stable_line_hz: float | None = None,
+    stable_is_absolute: bool = False,
+    window: Window | None = None,
+    center_frequency_hz: float | None = None,
+    progress: ProgressFn | None = None,
+) -> FrequencyTrack | None:
+    """Follow the planned line(s) through bands captured during the pipeline's pass.
+
+    The same tracking as :func:`track_frequency` (block length, span, channel, estimator,
+    figures), on :class:`~iqscope.dsp._spectrum.SubbandCapture` streams instead of a second read of
+    the recording. Returns None when it cannot stand in for the full-rate tracker: a
+    line without a band, a channel that does not fit well inside its band (wide span,
+    short blocks) or a line that drifts out of it; the caller then reads the recording.
+    Block times count from the start of the recording (the bands start half a pass
+    segment in, so the first block starts there).
+    """
+    want = list(plan.lines_hz) + ([stable_line_hz] if stable_line_hz is not None else [])
+    chosen: list[SubbandCapture] = []
+    for f in want:
+        near = [b for b in bands if abs(f - b.centre_hz) < 0.5 * b.sample_rate_hz]
+        if not near:
+            return None
+        chosen.append(min(near, key=lambda b: abs(f - b.centre_hz)))
+    try:
+        tracker = _BandTracker(chosen, plan, block_s=block_s, span_hz=span_hz, stable_hz=stable_line_hz,
+                               stable_is_absolute=stable_is_absolute, window=window,
+                               center_frequency_hz=center_frequency_hz)
+    except _LeftBand:
+        return None
+    streams = [b.samples() for b in chosen]
+    bn = tracker.block_n
+    n_blocks = min(s.size for s in streams) // bn
+    if n_blocks < 1:
+        return None
+    d = chosen[0].decimation
+    try:
+        for k in range(n_blocks):
+            tracker.process_blocks([s[k * bn : (k + 1) * bn] for s in streams])
+            if progress is not None and (k % 64 == 63 or k == n_blocks - 1):
+                progress((k + 1) * bn * d, n_blocks * bn * d)
+    except _LeftBand:
+        return None
+    track = tracker.track()
+    t0 = chosen[0].start_sample / (chosen[0].sample_rate_hz * d)
+    return replace(track, times_s=track.times_s + t0, sample_rate_hz=chosen[0].sample_rate_hz * d)
+
+
+def plan_capture(
+    recording: Recording,
+    nfft: int,
+    step: int,
+    window: str,
+    *,
+    reference_hz: float | None = None,
+    line_hz: float | None = None,
+    max_bytes: int = CAPTURE_BYTES,
+) -> tuple[tuple[Spectrum, float] | None, list[SubbandCapture]]:
+    """Before the pipeline's pass: the start survey and the bands to capture for drift.
+
+    The survey (:func:`survey_at_start`) is what the drift provider plans from; the bands
+    are :class:`~iqscope.dsp._spectrum.SubbandCapture` objects around the strongest
+    :data:`CAPTURE_LINES` lines it shows (and the lines near ``--reference`` and
+    ``--line``), at about :data:`CAPTURE_RATE_HZ`, as many as fit in ``max_bytes``.
+    None and no bands when there is no survey; no bands when the pass's segments do not
+    overlap by half, the rate is too low to gain from decimating (< 4x), or no line
+    stands out.
+    """
+    try:
+        spec, noise, _ = survey_at_start(recording)
+    except MeasurementError:
+        return None, []
+    fs = recording.sample_rate_hz
+    d = subband_decimation(nfft, step, fs, CAPTURE_RATE_HZ)
+    if d < 4:
+        return (spec, noise), []
+    lines = find_lines(spec.freqs_hz, spec.psd, noise, min_ratio_db=10.0, max_lines=24,
+                       min_contrast_db=LINE_CONTRAST_DB)
+    wanted: list[float] = []
+    for hint in (reference_hz, line_hz):
+        if hint is None:
+            continue
+        try:
+            off = resolve_frequency(hint, fs, recording.center_frequency_hz, "frequency")[0]
+        except UsageError:
+            continue
+        near = _nearest(lines, off, 50.0)
+        if near is not None:
+            wanted.append(near.frequency_hz)
+    wanted += [ln.frequency_hz for ln in lines[:CAPTURE_LINES]]
+    rate = fs / d
+    per_band = 8.0 * rate * recording.duration_s + 8.0 * rate
+    bands: list[SubbandCapture] = []
+    for f in wanted:
+        if len(bands) >= CAPTURE_LINES or (len(bands) + 1) * per_band > max_bytes:
+            break
+        if any(abs(f - b.centre_hz) <= 0.25 * b.sample_rate_hz for b in bands):
+            continue
+        bands.append(SubbandCapture(nfft, fs, window, f, d))
+    return (spec, noise), bands
+
+
 def track_frequency(
     recording: Recording,
     reference_offset_hz: float | Sequence[float] | LinePlan,
@@ -1559,11 +1753,15 @@ def analyse_drift(
     progress: ProgressFn | None = None,
     spectrum: tuple[Spectrum, float] | None = None,
     hint_tol_hz: float = 5.0,
+    bands: Sequence[SubbandCapture] = (),
 ) -> DriftResult:
     """Survey, plan, track and figure: what ``iqscope drift`` runs.
 
     Frequencies as in :func:`prepare_tracking`; ``spectrum`` is an averaged spectrum of
     the start of the recording and its noise floor PSD (default: :func:`survey_at_start`).
+    ``bands`` are narrow bands captured during the pipeline's pass (:func:`plan_capture`):
+    when they hold the planned lines the track comes from them (:func:`track_bands`)
+    instead of a second read of the recording.
     """
     if block_s is not None and not (block_s > 0 and math.isfinite(block_s)):
         raise UsageError(f"--block {block_s!r} must be a positive number of seconds")
@@ -1576,10 +1774,16 @@ def analyse_drift(
     plan = setup.plan
     if block_s is None:
         block_s = choose_block_s(plan.snr, recording.sample_rate_hz, recording.duration_s)
-    track = track_frequency(
-        recording, plan, block_s=block_s, span_hz=span_hz, progress=progress,
-        stable_line_hz=setup.stable_search_hz, stable_is_absolute=setup.stable_is_absolute,
-    )
+    track = None
+    if bands:
+        track = track_bands(bands, plan, block_s=block_s, span_hz=span_hz, progress=progress,
+                            stable_line_hz=setup.stable_search_hz, stable_is_absolute=setup.stable_is_absolute,
+                            center_frequency_hz=recording.center_frequency_hz)
+    if track is None:
+        track = track_frequency(
+            recording, plan, block_s=block_s, span_hz=span_hz, progress=progress,
+            stable_line_hz=setup.stable_search_hz, stable_is_absolute=setup.stable_is_absolute,
+        )
     if setup.stable_is_absolute:
         track = replace(track, stable_nominal_hz=setup.stable_nominal_hz)
     result = drift_measurements(track, nominal_offset_hz=setup.nominal_offset_hz, window_s=window_s,
@@ -1600,6 +1804,9 @@ def drift_figures(ctx: AnalysisContext) -> FigureSet:
     rec = ctx.recording
     req = ctx.request
     opts = req.options.get("drift", {}) if isinstance(req.options, Mapping) else {}
+    stats = getattr(ctx, "stats", None)
+    survey = getattr(stats, "line_survey", None)
+    bands = tuple(getattr(stats, "line_bands", ()))
     try:
         # The line positions come from a survey at the start of the recording (where
         # tracking starts): the pipeline's whole-recording average smears a drifting line.
@@ -1618,6 +1825,8 @@ def drift_figures(ctx: AnalysisContext) -> FigureSet:
             settle_band_hz=float(opts.get("settle_band_hz", DEFAULT_SETTLE_BAND_HZ)),
             progress=req.progress,
             hint_tol_hz=50.0,
+            spectrum=survey,
+            bands=bands,
         )
     except (MeasurementError, UsageError) as exc:
         out.warnings.append(f"drift not measured: {exc.message}")

@@ -133,6 +133,14 @@ class StreamStats:
     """Centre time of each ``block_psd`` row, s."""
     block_psd_counts: npt.NDArray[np.int64] = field(default_factory=lambda: np.zeros(0, np.int64))
     """Segments averaged in each ``block_psd`` row."""
+    line_survey: tuple[Spectrum, float] | None = None
+    """Averaged spectrum of the start of the recording and its noise PSD
+    (:func:`iqscope.measure.drift.survey_at_start`), taken before the pass when the drift
+    provider runs; None otherwise."""
+    line_bands: tuple[Any, ...] = ()
+    """Narrow bands around the survey's strongest lines, rebuilt from the pass's FFTs
+    (:class:`iqscope.dsp._spectrum.SubbandCapture`): the drift provider follows its lines in them
+    instead of reading the recording again."""
 
     def levels(self) -> Levels:
         """The same statistics as :class:`iqscope.dsp.Levels` (what ``LevelAccumulator`` gives)."""

@@ -34,7 +34,8 @@ from __future__ import annotations
 
 import math
 import time
-from collections.abc import Callable, Sequence
+from dataclasses import replace
+from collections.abc import Callable, Mapping, Sequence
 from typing import Any, Final
 
 import numpy as np
@@ -43,7 +44,7 @@ from scipy import fft as sp_fft
 
 from ..dsp._envelope import block_envelope
 from ..dsp._noise import noise_floor
-from ..dsp._spectrum import AveragedSpectrum, SpectrumAccumulator
+from ..dsp._spectrum import AveragedSpectrum, SpectrumAccumulator, SubbandCapture
 from ..io._recording import Recording
 from ._analysis import Analysis, RecordingInfo, Trace
 from ._context import AnalysisContext, AnalysisRequest, FigureProvider, FigureSet
@@ -52,7 +53,7 @@ from .artefacts import artefact_figures
 from .bandwidth import bandwidth_figures
 from .carrier import carrier_figures
 from .designator import designator_figures
-from .drift import drift_figures
+from .drift import drift_figures, plan_capture
 from .imd import two_tone_figures
 from .levels import level_figures
 from .locate import CoreContext, StreamStats, compute_layout, locate_signal
@@ -263,11 +264,16 @@ def _reduce_cols(row: npt.NDArray[np.float64], cols: int) -> npt.NDArray[np.floa
 
 
 def _stream(
-    recording: Recording, plan: Plan, progress: Callable[[int, int], None] | None
+    recording: Recording,
+    plan: Plan,
+    progress: Callable[[int, int], None] | None,
+    bands: Sequence[SubbandCapture] = (),
 ) -> tuple[AveragedSpectrum, StreamStats, Trace | None, Trace | None]:
     fs = recording.sample_rate_hz
     n = recording.n_samples
     acc = SpectrumAccumulator(max(plan.nfft, 1), fs, window=WINDOW, overlap=plan.overlap)
+    for band in bands:
+        acc.capture(band)
     clip = float(getattr(recording, "clip_level", 1.0) or 1.0)
     lev = _Levels(clip)
     env_block = max(1, n // ENVELOPE_POINTS)
@@ -349,6 +355,12 @@ def _stream(
             extra={"rows": np.asarray(row_t, dtype=np.float64), "z_label": "PSD (dBFS/Hz)"},
         )
     return spectrum, stats, env_trace, spec_trace
+
+
+def _drift_option(request: AnalysisRequest, key: str) -> float | None:
+    opts = request.options.get("drift", {}) if isinstance(request.options, Mapping) else {}
+    v = opts.get(key) if isinstance(opts, Mapping) else None
+    return float(v) if isinstance(v, (int, float)) else None
 
 
 def _run_provider(provider: FigureProvider, ctx: AnalysisContext) -> tuple[FigureSet, float]:
@@ -442,7 +454,17 @@ def analyse(
     n = recording.n_samples
     plan = plan_pass(fs, n, request.resolution_hz)
     warnings: list[str] = list(plan.warnings)
-    spectrum, stats, env_trace, spec_trace = _stream(recording, plan, request.progress)
+    run = PROVIDERS if providers is None else providers
+    survey: tuple[Any, float] | None = None
+    bands: list[SubbandCapture] = []
+    if drift_figures in run and n >= 16:
+        # The drift provider's start survey, and narrow bands around its lines captured
+        # from this pass's FFTs, so that it need not read the recording again.
+        step = max(1, int(round(plan.nfft * (1.0 - plan.overlap))))
+        survey, bands = plan_capture(recording, plan.nfft, step, WINDOW, reference_hz=request.reference_hz,
+                                     line_hz=_drift_option(request, "line_hz"))
+    spectrum, stats, env_trace, spec_trace = _stream(recording, plan, request.progress, bands)
+    stats = replace(stats, line_survey=survey, line_bands=tuple(bands))
     warnings.extend(w for w in getattr(recording, "warnings", ()) if w not in warnings)
     floor = noise_floor(spectrum)
     if n < 16:
@@ -485,7 +507,7 @@ def analyse(
         traces["envelope"] = env_trace
     if spec_trace is not None:
         traces["spectrogram"] = spec_trace
-    for provider in PROVIDERS if providers is None else providers:
+    for provider in run:
         fset, _ = _run_provider(provider, ctx)
         for k, m in fset.measurements.items():
             # The first provider to give a figure wins, but a value beats a null.
