@@ -21,6 +21,8 @@ FS = 48_000.0
 CENTER = 7_100_000.0
 CARRIER = 3_210.0
 TONE = 1_000.0
+#: Mean power of dsb_spectrum's two sideband lines (amplitude 0.25 each): 10 log10(2 x 0.0625).
+SIGNAL_DBFS = -9.030899869919435
 
 
 def recording_info(path: str = "bench/dsb40m.sigmf-meta", n: int = 480_000) -> RecordingInfo:
@@ -119,8 +121,10 @@ def spur_measurement(level_dbc: float = -61.3) -> Measurement:
         details={
             "spurs": spurs,
             "necessary_bandwidth_hz": 6_000.0,
+            "emission_centre_hz": CARRIER,
             "spurious_boundary_hz": 15_000.0,
             "searched_spurious_hz": 14_580.0,
+            "reference_dbfs": SIGNAL_DBFS,
         },
     )
 

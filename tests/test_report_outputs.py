@@ -236,3 +236,25 @@ def test_html_shows_spur_table_bounds_and_designator() -> None:
     assert "Spurs" in text and '<table class="spurs">' in html
     assert '<tr class="receiver"><td class="line">7.100000 MHz</td>' in html
     assert "receiver DC offset" in text and "+16.000 kHz" in text and "-61.3 ± 0.4 dBc" in text
+
+
+def test_spectrum_draws_spurs_limit_and_receiver_lines() -> None:
+    """Stored numbers only: a spurious-domain line at reference + level (dBc re mean
+    power), the graded spur limit (47 CFR 97.307(d): -43 dBc) over the spurious domain,
+    and the receiver's DC line named as such."""
+    from grading_helpers import SIGNAL_DBFS
+
+    from iqscope.report._plots import spectrum_figure
+
+    dc = Artefact("dc_line", 0.0, -52.0, "line at the capture centre")
+    fig = spectrum_figure(grade(dsb_analysis(37.6, artefacts=(dc,), with_traces=False)))
+    ax = fig.axes[0]
+    labels = [t.get_text() for legend in fig.legends for t in legend.get_texts()]
+    assert "spur limit (a line's level): -43 dBc re mean power" in labels
+    limit = [ln for ln in ax.lines if ln.get_linestyle() == "--" and ln.get_color() == "#c0392b"]
+    assert limit and all(np.allclose(ln.get_ydata(), SIGNAL_DBFS - 43.0) for ln in limit)
+    marks = [ln for ln in ax.lines if ln.get_marker() == "v"]
+    assert len(marks) == 1 and np.allclose(marks[0].get_ydata(), SIGNAL_DBFS - 61.3)
+    assert np.allclose(marks[0].get_xdata(), 16.0)  # kHz from the carrier
+    texts = [t.get_text() for t in ax.texts]
+    assert "receiver DC" in texts and "-61 dBc" in texts

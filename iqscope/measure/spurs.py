@@ -368,6 +368,8 @@ def spur_figures(ctx: AnalysisContext) -> FigureSet:
         "searched_spurious_hz": res.searched_spurious_hz,
         "detection_bound_dbc": res.bound_dbc,
         "reference": "mean power of the fundamental emission",
+        # the reference in dBFS, so a plot can place dBc levels and limits on its axis
+        "reference_dbfs": 10.0 * math.log10(ref) if ref > 0 else None,
         "necessary_band_basis": basis,
     }
     domain_txt = (

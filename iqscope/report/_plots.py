@@ -30,9 +30,12 @@ __all__ = ["PLOT_NAMES", "render_plots", "spectrum_figure", "figure_png"]
 PLOT_NAMES: Final = ("spectrum", "spectrogram", "envelope", "frequency", "allan")
 
 _SIZE: Final = (8.0, 4.5)
+_SPECTRUM_SIZE: Final = (8.0, 5.4)
 _DPI: Final = 110
 _MASK_COLOR: Final = "#c0392b"
 _EDGE_COLOR: Final = "#2471a3"
+_RECEIVER_COLOR: Final = "#7d3c98"
+_SPUR_COLOR: Final = "#d35400"
 
 
 def figure_png(fig: Figure) -> bytes:
@@ -58,7 +61,9 @@ def render_plots(result: GradeResult) -> dict[str, bytes]:
     fr = a.traces.get("frequency")
     if fr is not None and np.ndim(fr.y) == 1 and np.size(fr.y) > 1:
         out["frequency"] = figure_png(
-            _line_figure(a, fr, "Frequency over time", band=fr.extra.get("sigma"), relative=True)
+            _line_figure(
+                a, fr, "Frequency over time", band=fr.extra.get("sigma"), relative=True, window=_worst_window(a)
+            )
         )
     ad = a.traces.get("allan_deviation")
     if ad is not None and np.ndim(ad.y) == 1 and np.size(ad.y) > 1:
@@ -111,6 +116,15 @@ def spectrum_figure(result: GradeResult) -> Figure:
     assert spec is not None
     masks = _mask_rules(result)
     widths = [masks[k] / 2 for k in ("bandwidth_26db_hz", "occupied_bandwidth_hz") if k in masks]
+    spurs = _spur_info(result)
+    if spurs is not None and spurs["limit"] is not None and a.signal.carrier_offset_hz is not None:
+        # Show where the spurious domain starts, when that fits in the recorded band.
+        nyq = spec.sample_rate_hz / 2
+        c = a.signal.carrier_offset_hz
+        edges = [spurs["centre"] - spurs["boundary"], spurs["centre"] + spurs["boundary"]]
+        reach = [abs(e - c) for e in edges if abs(e) < nyq]
+        if reach and 1.4 * max(reach) <= nyq:
+            widths.append(max(reach))
     centre, half = _view(a, widths)
     scale, unit = _hz_scale(2 * half)
     f = spec.freqs_hz
@@ -121,7 +135,7 @@ def spectrum_figure(result: GradeResult) -> Figure:
     psd = np.nan_to_num(np.asarray(spec.psd[sel], dtype=float), nan=0.0, posinf=0.0, neginf=0.0)
     level = 10.0 * np.log10(np.maximum(psd * spec.enbw_hz, 1e-30))
     x = (f[sel] - centre) / scale
-    fig = Figure(figsize=_SIZE, layout="constrained")
+    fig = Figure(figsize=_SPECTRUM_SIZE, layout="constrained")
     ax = fig.add_subplot()
     ax.plot(x, level, color="#1b2631", linewidth=0.9, label="spectrum")
     peak = float(np.max(level))
@@ -145,14 +159,106 @@ def spectrum_figure(result: GradeResult) -> Figure:
         ax.plot([], [], color="#909497", linewidth=0.7, linestyle=(0, (1, 3)), label="emission band")
     if a.signal.carrier_offset_hz is not None:
         ax.axvline(0.0, color="#7d3c98", linewidth=0.8, linestyle=":", label="carrier")
-    _draw_point_markers(ax, a, centre, scale, sel, level)
+    # The worst spur is drawn with the spur table when its levels can be placed.
+    _draw_point_markers(ax, a, centre, scale, sel, level, frozenset({"worst_spur"}) if spurs else frozenset())
+    _draw_receiver_artefacts(ax, a, centre, scale, sel, level)
     _draw_mask(ax, a, masks, centre, scale, peak)
+    if spurs is not None:
+        _draw_spurs(ax, spurs, centre, scale)
     ax.set_xlabel(f"offset from carrier ({unit})" if a.signal.carrier_offset_hz is not None else f"offset ({unit})")
     ax.set_ylabel(f"dBFS in {spec.enbw_hz:.3g} Hz RBW")
     ax.set_title(_title(a, "Spectrum"), fontsize=10)
     ax.grid(True, alpha=0.3)
-    ax.legend(loc="best", fontsize=7, framealpha=0.85)
+    # Below the axes: inside, a long legend hides the band edges and the spur limit.
+    fig.legend(loc="outside lower center", ncols=3, fontsize=7, frameon=False)
     return fig
+
+
+def _spur_info(result: GradeResult) -> dict[str, Any] | None:
+    """What the spur figure stored: reference (dBFS), domain, lines and the graded limit."""
+    m = result.analysis.measurements.get("worst_spur_dbc")
+    if m is None:
+        return None
+    d = m.details
+    ref, centre, boundary = d.get("reference_dbfs"), d.get("emission_centre_hz"), d.get("spurious_boundary_hz")
+    if not all(isinstance(x, (int, float)) and math.isfinite(x) for x in (ref, centre, boundary)):
+        return None
+    v = result.verdict_for("worst_spur_dbc")
+    limit = None if v is None or v.rule is None else v.rule.pass_bound.max
+    lines = [
+        s
+        for s in d.get("spurs") or []
+        if isinstance(s, Mapping) and s.get("domain") == "spurious" and not s.get("artefact")
+        and isinstance(s.get("offset_hz"), (int, float)) and isinstance(s.get("level_dbc"), (int, float))
+    ]
+    return {"ref": float(ref), "centre": float(centre), "boundary": float(boundary), "limit": limit,
+            "lines": lines, "worst": m.value if not m.limited_by_noise else None}
+
+
+def _draw_spurs(ax: Any, spurs: Mapping[str, Any], centre: float, scale: float) -> None:
+    """Spurious-domain lines at their stored levels, and the spur limit over that domain.
+
+    Levels are dBc re the mean power; ``reference_dbfs`` puts them on the dBFS axis (a
+    line reads its power in one resolution bandwidth).
+    """
+    x0, x1 = ax.get_xlim()
+    ref = spurs["ref"]
+    lo_edge = (spurs["centre"] - spurs["boundary"] - centre) / scale
+    hi_edge = (spurs["centre"] + spurs["boundary"] - centre) / scale
+    limit = spurs["limit"]
+    if limit is not None:
+        label = f"spur limit (a line's level): {limit:g} dBc re mean power"
+        for a_, b_ in ((x0, min(lo_edge, x1)), (max(hi_edge, x0), x1)):
+            if b_ > a_:
+                ax.plot([a_, b_], [ref + limit] * 2, color=_MASK_COLOR, linewidth=1.1, linestyle="--", label=label)
+                label = "_nolegend_"
+    shown = False
+    outside: list[Mapping[str, Any]] = []
+    for s in spurs["lines"]:
+        x = (float(s["offset_hz"]) - centre) / scale
+        if not x0 <= x <= x1:
+            outside.append(s)
+            continue
+        y = ref + float(s["level_dbc"])
+        ax.plot([x], [y], marker="v", color=_SPUR_COLOR, markersize=6, linestyle="none",
+                label="_nolegend_" if shown else "spur (spurious domain)")
+        ax.annotate(f"{float(s['level_dbc']):.0f} dBc", xy=(x, y), xytext=(0, 8), textcoords="offset points",
+                    ha="center", fontsize=7, color=_SPUR_COLOR)
+        shown = True
+    if outside:
+        worst = max(outside, key=lambda s: float(s["level_dbc"]))
+        off = float(worst["offset_hz"]) - centre
+        ax.text(0.01, 0.01, f"strongest spur outside this view: {float(worst['level_dbc']):.1f} dBc at "
+                f"{'+' if off >= 0 else '-'}{_hz_text(abs(off))} from the carrier",
+                transform=ax.transAxes, fontsize=7, color=_SPUR_COLOR, ha="left", va="bottom")
+
+
+_ARTEFACT_TEXT: Final = {"dc_line": "receiver DC", "iq_image": "receiver image"}
+
+
+def _draw_receiver_artefacts(
+    ax: Any, a: Analysis, centre: float, scale: float, sel: npt.NDArray[np.bool_], level: npt.NDArray[np.float64]
+) -> None:
+    """Name the lines that are the receiver's (DC offset, I/Q image), so none reads as a spur."""
+    spec = a.spectrum
+    assert spec is not None
+    f = spec.freqs_hz[sel]
+    done: list[tuple[str, float]] = []
+    tol = max(2.0 * spec.bin_hz, 0.03 * float(f[-1] - f[0]))  # one label per crowded spot
+    for art in a.artefacts:
+        hz = art.offset_hz
+        text = _ARTEFACT_TEXT.get(art.kind)
+        if text is None or hz is None or not math.isfinite(hz) or hz < f[0] or hz > f[-1]:
+            continue
+        if any(t == text and abs(hz - d) <= tol for t, d in done):
+            continue
+        done.append((text, hz))
+        i = int(np.argmin(np.abs(f - hz)))
+        lo, hi = max(0, i - 2), min(level.size, i + 3)
+        y = float(np.max(level[lo:hi]))
+        ax.annotate(text, xy=((hz - centre) / scale, y), xytext=(0, 10), textcoords="offset points",
+                    ha="center", fontsize=7, color=_RECEIVER_COLOR, style="italic",
+                    arrowprops={"arrowstyle": "-", "color": _RECEIVER_COLOR, "linewidth": 0.6})
 
 
 _SKIP_POINT: Final = frozenset(
@@ -160,20 +266,45 @@ _SKIP_POINT: Final = frozenset(
 )
 
 
+def _marker_text(name: str) -> str:
+    """``"imd3_lower"`` -> ``"IMD3 lower"``, ``"tone1"`` -> ``"tone 1"``, ``"sideband_upper"`` ->
+    ``"upper sideband"``."""
+    if name.startswith("imd") and "_" in name:
+        order, side = name.split("_", 1)
+        return f"{order.upper()} {side}"
+    if name.startswith("tone") and name[4:].isdigit():
+        return f"tone {name[4:]}"
+    if name.startswith("sideband_"):
+        return f"{name[9:]} sideband"
+    return name.replace("_", " ")
+
+
 def _draw_point_markers(
-    ax: Any, a: Analysis, centre: float, scale: float, sel: npt.NDArray[np.bool_], level: npt.NDArray[np.float64]
+    ax: Any,
+    a: Analysis,
+    centre: float,
+    scale: float,
+    sel: npt.NDArray[np.bool_],
+    level: npt.NDArray[np.float64],
+    skip: frozenset[str] = frozenset(),
 ) -> None:
     spec = a.spectrum
     assert spec is not None
     f = spec.freqs_hz[sel]
     for name, hz in a.markers.items():
-        if name in _SKIP_POINT or not math.isfinite(hz) or hz < f[0] or hz > f[-1]:
+        if name in _SKIP_POINT or name in skip or not math.isfinite(hz) or hz < f[0] or hz > f[-1]:
             continue
+        if name.startswith("imd") and "_" in name:
+            # An IMD product below the noise has a marker but no line: no label at the floor.
+            order = name.split("_", 1)[0]
+            product = a.measurements.get(f"{order}_dbc")
+            if product is None or product.limited_by_noise or product.value is None:
+                continue
         i = int(np.argmin(np.abs(f - hz)))
         lo, hi = max(0, i - 2), min(level.size, i + 3)
         y = float(np.max(level[lo:hi]))
         ax.annotate(
-            name.replace("_", " "),
+            _marker_text(name),
             xy=((hz - centre) / scale, y),
             xytext=(0, 10),
             textcoords="offset points",
@@ -261,8 +392,28 @@ def _spectrogram_figure(a: Analysis, tr: Trace) -> Figure:
     return fig
 
 
-def _line_figure(a: Analysis, tr: Trace, what: str, band: Any = None, relative: bool = False) -> Figure:
-    """A curve over time; ``relative`` draws it about its median (named in the label)."""
+def _worst_window(a: Analysis) -> tuple[float, float, str] | None:
+    """Start, length and legend text of the worst drift window (``drift_worst_window_hz``)."""
+    m = a.measurements.get("drift_worst_window_hz")
+    if m is None or m.value is None:
+        return None
+    start, span = m.details.get("window_start_s"), m.details.get("window_s")
+    if not all(isinstance(x, (int, float)) and math.isfinite(x) for x in (start, span)):
+        return None
+    what = "at most " if m.limited_by_noise else ""
+    return float(start), float(span), f"worst {float(span):g}-s window: {what}{m.value:.3g} Hz peak-to-peak"
+
+
+def _line_figure(
+    a: Analysis,
+    tr: Trace,
+    what: str,
+    band: Any = None,
+    relative: bool = False,
+    window: tuple[float, float, str] | None = None,
+) -> Figure:
+    """A curve over time; ``relative`` draws it about its median (named in the label);
+    ``window`` (start s, length s, text) shades the worst drift window."""
     fig = Figure(figsize=_SIZE, layout="constrained")
     ax = fig.add_subplot()
     x = np.asarray(tr.x, dtype=float)
@@ -272,7 +423,7 @@ def _line_figure(a: Analysis, tr: Trace, what: str, band: Any = None, relative: 
     if relative and finite.size:
         ref = float(np.median(finite))
         y = y - ref
-        y_label = f"{tr.y_label} minus {ref:.3f}"
+        y_label = f"{tr.y_label}, relative to {ref:.3f}"
     peak = tr.extra.get("peak_dbfs")
     if peak is not None and np.shape(peak) == y.shape:
         ax.plot(x, np.asarray(peak, dtype=float), color=_MASK_COLOR, linewidth=0.8, label="peak")
@@ -283,6 +434,15 @@ def _line_figure(a: Analysis, tr: Trace, what: str, band: Any = None, relative: 
     if band is not None and np.shape(band) == y.shape:
         s = np.asarray(band, dtype=float)
         ax.fill_between(x, y - s, y + s, color=_EDGE_COLOR, alpha=0.2, linewidth=0, label="1-sigma")
+    if window is not None and x.size:
+        start, span, text = window
+        t0, t1 = max(start, float(x[0])), min(start + span, float(x[-1]))
+        whole = float(x[-1] - x[0])
+        if t1 > t0 and (t1 - t0) < 0.95 * whole:  # a window as long as the track says nothing
+            ax.axvspan(t0, t1, color=_SPUR_COLOR, alpha=0.10, linewidth=0, label=text)
+        else:
+            window = None
+    if band is not None or window is not None:
         ax.legend(loc="upper right", fontsize=7)
     ax.set_xlabel(tr.x_label)
     ax.set_ylabel(y_label)
