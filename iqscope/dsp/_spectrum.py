@@ -326,6 +326,7 @@ class SpectrumAccumulator:
         self._tail = np.zeros(0, np.complex64)
         self._batch = max(1, _BATCH_SAMPLES // self.nfft)
         self._captures: list[SubbandCapture] = []
+        self._buf = np.zeros((0, self.nfft), np.complex64)
 
     def capture(self, band: SubbandCapture) -> None:
         """Feed ``band`` with the DFTs of every segment from now on (see :class:`SubbandCapture`)."""
@@ -361,15 +362,23 @@ class SpectrumAccumulator:
             return 0
         nseg = (x.size - nfft) // step + 1
         view = np.lib.stride_tricks.sliding_window_view(x, nfft)[::step]
+        rows = min(self._batch, nseg)
+        if self._buf.shape[0] < rows:
+            # reused between calls: fresh multi-megabyte arrays cost page faults each time
+            self._buf = np.empty((rows, nfft), np.complex64)
         for s in range(0, nseg, self._batch):
             seg = view[s : s + self._batch]
-            y = seg * self._w32
+            y = np.multiply(seg, self._w32, out=self._buf[: seg.shape[0]])
             y = sp_fft.fft(y, axis=1, workers=self.workers, overwrite_x=True)
             for band in self._captures:
                 band.add(y[:, band.bins], self._count + s)
-            p = y.real * y.real
-            p += y.imag * y.imag
-            self._partial += p.sum(axis=0)
+            # |Y|^2 summed over the batch: square the float32 view in place, sum the rows,
+            # then add the real and imaginary halves
+            f = y.view(np.float32)
+            np.multiply(f, f, out=f)
+            col = f.sum(axis=0)
+            self._partial += col[0::2]
+            self._partial += col[1::2]
         self._count += nseg
         self._partial_count += nseg
         rest = x[nseg * step :]

@@ -178,13 +178,34 @@ def _periodogram_derivs(
 ) -> tuple[complex, float, float]:
     """X(w), dP/dw and d2P/dw2 of P(w) = |sum x[n] exp(-j w m[n])|^2."""
     z = x * np.exp(-1j * w * m)
-    x0 = complex(z.sum())
-    mz = m * z
-    x1 = complex(-1j * mz.sum())
-    x2 = complex(-(m * mz).sum())
+    # the three sums sum z, sum m z, sum m^2 z as one small matrix product
+    r = _moments(m) @ z.view(np.float64).reshape(-1, 2)
+    x0 = complex(r[0, 0], r[0, 1])
+    x1 = complex(r[1, 1], -r[1, 0])  # -j sum m z
+    x2 = complex(-r[2, 0], -r[2, 1])  # -sum m^2 z
     d1 = 2.0 * (x0.conjugate() * x1).real
     d2 = 2.0 * (abs(x1) ** 2 + (x0.conjugate() * x2).real)
     return x0, d1, d2
+
+
+_MOMENTS: dict[int, tuple[npt.NDArray[np.float64], npt.NDArray[np.float64]]] = {}
+
+
+def _moments(m: npt.NDArray[np.float64]) -> npt.NDArray[np.float64]:
+    """Rows 1, m, m^2 (cached for the last few time grids)."""
+    hit = _MOMENTS.get(id(m))
+    if hit is not None and hit[0] is m:
+        return hit[1]
+    if len(_MOMENTS) > 64:
+        _MOMENTS.clear()
+    out = np.ascontiguousarray(np.stack((np.ones_like(m), m, m * m)))
+    _MOMENTS[id(m)] = (m, out)
+    return out
+
+
+def _wrap1(f: float, fs: float) -> float:
+    """Wrap one frequency into [-fs/2, fs/2)."""
+    return (f + fs / 2.0) % fs - fs / 2.0
 
 
 def _refine(
@@ -319,7 +340,7 @@ def estimate_tones(
             lo_w, hi_w = -math.inf, math.inf
             w_ref = 0.0
         else:
-            c = float(_wrap_hz(float(center), fs))
+            c = _wrap1(float(center), fs)
             dist = np.abs(_wrap_hz(freqs - c, fs))
             region = np.flatnonzero(dist <= max(float(span), fs / nfft))
             if region.size == 0:
@@ -353,13 +374,13 @@ def estimate_tones(
         den = a - 2 * b + c3
         delta = 0.5 * (a - c3) / den if den < 0 else 0.0
         delta = max(-0.5, min(0.5, delta))
-        f0 = float(_wrap_hz(freqs[k] + delta * fs / nfft, fs))
+        f0 = _wrap1(float(freqs[k]) + delta * fs / nfft, fs)
         w0 = 2 * math.pi * f0 / fs
         # keep the search window continuous around w_ref (wrap-around of the band)
         if math.isfinite(lo_w):
             w0 = w_ref + math.remainder(w0 - w_ref, 2 * math.pi)
         w, x0 = _refine(xw, m, w0, lo_w, hi_w, iterations)
-        f = float(_wrap_hz(w * fs / (2 * math.pi), fs))
+        f = _wrap1(w * fs / (2 * math.pi), fs)
         amp = abs(x0) / gain
         noise = noise_global
         if noise_power is None and center is not None and span is not None:
