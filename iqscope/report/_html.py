@@ -28,12 +28,13 @@ from ._units import (
 __all__ = ["render_html"]
 
 _CAPTIONS: Final[Mapping[str, str]] = {
-    "spectrum": "Spectrum around the signal: carrier, sidebands, 99 % and -26 dB band edges; the red "
-    "limit mask is drawn relative to the displayed peak as a visual aid (verdicts come from the "
-    "measurements).",
+    "spectrum": "Spectrum around the signal: carrier, sidebands, 99 % and -26 dB band edges, lines "
+    "that are the receiver's named as such. The red limit mask is drawn relative to the displayed "
+    "peak as a visual aid; the dashed red spur limit is where a discrete line would sit at the limit "
+    "(verdicts come from the measurements, not the picture).",
     "spectrogram": "Spectrogram: level over time and frequency.",
     "envelope": "Envelope over time.",
-    "frequency": "Frequency of the reference line over time (1-sigma band).",
+    "frequency": "Frequency of the reference line over time (1-sigma band; the worst drift window shaded).",
     "allan": "Overlapping Allan deviation of fractional frequency.",
 }
 

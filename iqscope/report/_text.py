@@ -492,12 +492,12 @@ def render_profile(profile: LimitsProfile, *, ascii_only: bool = False) -> Rende
     table.add_column("warn")
     table.add_column("source")
     for r in profile.rules:
-        w = r.warn_bound
+        limit = _limit_text(r, ascii_only, two_lines=True).split("\nwarn ", 1)
         table.add_row(
             label(r.measurement),
             ", ".join(r.modes) or "all",
-            format_limit(r.pass_bound.min, r.pass_bound.max, unit=r.unit, ascii_only=ascii_only),
-            "" if w is None else format_limit(w.min, w.max, unit=r.unit, ascii_only=ascii_only),
+            limit[0],
+            limit[1] if len(limit) > 1 else "",
             r.source,
         )
     parts: list[RenderableType] = [head, Text(profile.description)]
