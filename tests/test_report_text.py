@@ -226,3 +226,28 @@ def test_no_spur_table_without_lines() -> None:
     ms["worst_spur_dbc"] = Measurement(-91.0, "dBc", limited_by_noise=True, bound="upper", details={"spurs": []})
     text = render(grade(dsb_analysis(37.6, measurements=ms, spectrum=False, with_traces=False)))
     assert "\nspurs" not in text and "≤ -91 dBc (noise-limited)" in text
+
+
+def test_labels_and_json_doc_cover_every_key_the_providers_write() -> None:
+    """Scan iqscope/measure/ for the keys providers write (``measurements["k"] = ...``,
+    ``ms["k"] = ...``, the ``imd{order}`` family), so a new figure cannot ship with a raw
+    name in the reports or undocumented in the JSON contract page."""
+    import re
+    from pathlib import Path
+
+    import iqscope.measure
+    from iqscope.report._text import LABELS
+
+    root = Path(iqscope.measure.__file__).parent
+    found: set[str] = set()
+    for src in root.glob("*.py"):
+        text = src.read_text(encoding="utf-8")
+        found |= set(re.findall(r"""(?:measurements|ms)\[["']([a-z0-9_]+)["']\]\s*=""", text))
+        if 'f"imd{order}_dbc"' in text:
+            found |= {f"imd{n}_{kind}" for n in (3, 5, 7) for kind in ("dbc", "db_pep")}
+    assert "worst_spur_dbc" in found and "allan_deviation" in found  # the scan works
+    assert found <= set(PIPELINE_KEYS), found - set(PIPELINE_KEYS)
+    assert not found - set(LABELS), found - set(LABELS)
+    doc = (root.parent.parent / "docs" / "json.md").read_text(encoding="utf-8")
+    missing = [k for k in PIPELINE_KEYS if f"`{k}`" not in doc]
+    assert not missing, f"docs/json.md does not list {missing}"
