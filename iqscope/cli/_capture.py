@@ -213,6 +213,9 @@ def run_capture(args: argparse.Namespace) -> int:
     except ValueError as exc:
         raise UsageError(str(exc)) from None
     total = max(1, int(round(args.seconds * args.rate)))
+    from ..io import check_free_space
+
+    check_free_space(args.output, total * (4 if args.stream_format == "cs16" else 8))  # before tuning
     with _progress(total, enabled=sys.stderr.isatty()) as update:
         result = capture_to_sigmf(settings, args.output, force=args.force, progress=update)
     for w in result.warnings:

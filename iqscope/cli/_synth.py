@@ -14,7 +14,7 @@ import sys
 from pathlib import Path
 from typing import Any, Literal
 
-from ..errors import UsageError
+from ..errors import OutputError, UsageError
 from ..synth import (
     Am,
     Amplifier,
@@ -267,6 +267,26 @@ def build_spec(args: argparse.Namespace) -> SignalSpec | AudioSpec:
     )
 
 
+def _check_size(out: Path, spec: SignalSpec | AudioSpec, args: argparse.Namespace) -> None:
+    """Refuse before writing when the file cannot fit: WAV's 4 GiB or the free disk space."""
+    from ..io import check_free_space, parse_datatype
+
+    if isinstance(spec, AudioSpec):
+        n_bytes, wav = spec.n_samples * (int(args.bits) // 8), True
+    else:
+        wav = (args.format or ("wav" if out.suffix.lower() == ".wav" else "sigmf")) == "wav"
+        if wav:
+            n_bytes = spec.n_samples * 2 * (4 if args.bits == "float" else int(args.bits) // 8)
+        else:
+            try:
+                n_bytes = spec.n_samples * parse_datatype(args.datatype).sample_bytes
+            except ValueError:
+                return  # the writer names the bad datatype
+    if wav and n_bytes > 0xFFFFFFFF - 64:
+        raise OutputError("WAV cannot hold more than 4 GiB of samples; write SigMF instead", out)
+    check_free_space(out, n_bytes)
+
+
 def run(args: argparse.Namespace) -> int:
     """Build the spec from the options and write the file; print a line (or JSON)."""
     try:
@@ -274,6 +294,7 @@ def run(args: argparse.Namespace) -> int:
     except ValueError as exc:
         raise UsageError(f"synth {args.kind}: {exc}") from None
     out = Path(args.output)
+    _check_size(out, spec, args)
     try:
         if isinstance(spec, AudioSpec):
             if out.suffix.lower() != ".wav":

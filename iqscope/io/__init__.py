@@ -8,7 +8,7 @@ write_sigmf(path, samples, sample_rate_hz, ...) -> Path
     Write ``.sigmf-meta`` + ``.sigmf-data`` (streams an iterable of blocks).
 write_wav(path, samples, sample_rate_hz, *, bits=16, ...) -> Path
     Write a two-channel I/Q WAV (I left, Q right), centre frequency in a sidecar.
-atomic_write(path, *, force=False), atomic_write_text(path, text, force=False)
+atomic_write(path, *, force=False), atomic_write_text(path, text, force=False), check_free_space(path, n_bytes)
     Atomic, no-overwrite-without-force output for every file iqscope writes.
 Recording, ArrayRecording, Segment, Annotation, check_sample_rate
     The recording type every reader returns, and its parts.
@@ -18,7 +18,7 @@ SampleFormat, parse_datatype, SAMPLE_FORMATS, SIGMF_DATATYPES
 
 from __future__ import annotations
 
-from ._atomic import atomic_write, atomic_write_text, check_can_write
+from ._atomic import atomic_write, atomic_write_text, check_can_write, check_free_space
 from ._formats import SAMPLE_FORMATS, SIGMF_DATATYPES, SampleFormat, parse_datatype
 from ._recording import Annotation, ArrayRecording, Recording, Segment, check_sample_rate
 from ._registry import READERS, OpenRequest, ReaderSpec, find_reader, open_recording, register_reader
@@ -41,6 +41,7 @@ __all__ = [
     "atomic_write",
     "atomic_write_text",
     "check_can_write",
+    "check_free_space",
     "SampleFormat",
     "parse_datatype",
     "SAMPLE_FORMATS",

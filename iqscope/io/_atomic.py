@@ -16,6 +16,7 @@ from __future__ import annotations
 
 import contextlib
 import os
+import shutil
 import stat
 import tempfile
 from collections.abc import Iterator
@@ -24,7 +25,7 @@ from typing import BinaryIO
 
 from ..errors import OutputError
 
-__all__ = ["atomic_write", "atomic_write_text", "check_can_write"]
+__all__ = ["atomic_write", "atomic_write_text", "check_can_write", "check_free_space"]
 
 
 def _umask_mode() -> int:
@@ -49,6 +50,33 @@ def check_can_write(path: str | os.PathLike[str], *, force: bool = False) -> Pat
         if not force:
             raise OutputError("already exists; use --force to overwrite it", target)
     return target
+
+
+def _size_text(n_bytes: float) -> str:
+    for unit in ("B", "kB", "MB", "GB", "TB", "PB"):
+        if n_bytes < 1000 or unit == "PB":
+            return f"{n_bytes:.3g} {unit}"
+        n_bytes /= 1000
+    return f"{n_bytes:.3g} PB"  # pragma: no cover
+
+
+def check_free_space(path: str | os.PathLike[str], n_bytes: float) -> None:
+    """Raise :class:`OutputError` when ``path``'s folder has less than ``n_bytes`` free.
+
+    A check before a long write (a synthesized or captured recording) whose size is
+    known in advance, so that a mistyped length fails at once instead of filling the
+    disk. Nothing is created; a folder whose free space cannot be read passes.
+    """
+    target = Path(path)
+    try:
+        free = shutil.disk_usage(target.parent).free
+    except OSError:
+        return
+    if n_bytes > free:
+        raise OutputError(
+            f"would need about {_size_text(n_bytes)} but its folder has {_size_text(free)} free",
+            target,
+        )
 
 
 def _fsync_folder(folder: Path) -> None:
