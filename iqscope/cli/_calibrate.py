@@ -84,6 +84,8 @@ def run(args: argparse.Namespace) -> int:
             args.attenuation_db,
             level_uncertainty_db=args.level_uncertainty_db,
         )
+        for w in rec.warnings:  # soft problems of the input (partial sample, NaN ...)
+            print(f"iqscope: warning: {args.reference}: {w}", file=sys.stderr)
     save_calibration(cal, args.output, force=args.force)
     if args.json:
         sys.stdout.write(json.dumps(cal.to_json(), allow_nan=False) + "\n")

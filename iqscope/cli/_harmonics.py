@@ -74,7 +74,10 @@ def _levels(path: str, args: argparse.Namespace) -> Any:
     from ..measure.harmonics import analyse_levels
 
     with open_recording(path, format=args.format, rate=args.rate) as rec:
-        return analyse_levels(rec)
+        levels = analyse_levels(rec)
+        for w in rec.warnings:  # soft problems of the input (partial sample, NaN ...)
+            print(f"iqscope: warning: {path}: {w}", file=sys.stderr)
+        return levels
 
 
 def run(args: argparse.Namespace) -> int:

@@ -156,6 +156,8 @@ def run(args: argparse.Namespace) -> int:
                 if args.drive_scale != "db":
                     drive = _to_db(drive, args.drive_scale, str(drive))
             analysis = analyse(rec, request)
+            for w in rec.warnings:  # soft problems of the input (partial sample, NaN ...)
+                print(f"iqscope: warning: {path}: {w}", file=sys.stderr)
         points.append(point_from_analysis(drive, analysis))
     limit = DEFAULT_IMD3_LIMIT_DB_PEP if args.imd3_limit is None else args.imd3_limit
     try:
