@@ -23,3 +23,14 @@ def pytest_collection_modifyitems(config: pytest.Config, items: list[pytest.Item
 def rng() -> np.random.Generator:
     """A seeded generator so every test is repeatable."""
     return np.random.default_rng(20261201)
+
+
+# -- hypothesis profiles (issue 6, fuzzing; see docs/robustness.md) --------------------
+# "ci" (default) keeps every property test without its own max_examples short; "long"
+# is the developers' fuzz run: pytest ... --hypothesis-profile=long. The pytest plugin
+# of hypothesis loads the profile named by --hypothesis-profile after this file.
+from hypothesis import settings as _hyp_settings  # noqa: E402
+
+_hyp_settings.register_profile("ci", max_examples=60, deadline=None)
+_hyp_settings.register_profile("long", max_examples=5000, deadline=None)
+_hyp_settings.load_profile("ci")
