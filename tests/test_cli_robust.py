@@ -689,3 +689,34 @@ def test_check_free_space(tmp_path: Path) -> None:
     with pytest.raises(OutputError, match="free"):
         check_free_space(tmp_path / "huge.bin", 1e30)
     assert list(tmp_path.iterdir()) == []
+
+
+def test_harmonics_unknown_centre_names_a_way_that_exists(tmp_path: Path, capsys: pytest.CaptureFixture[str]) -> None:
+    """harmonics has no --center option: the error must not suggest one."""
+    wav = write_wav(tmp_path / "nocentre.wav", _tone(), FS)
+    status, out, err = _run(capsys, ["harmonics", str(wav), str(_second_harmonic(tmp_path))])
+    line = err.strip()
+    assert status == EXIT_INPUT and out == "" and "nocentre.wav" in line
+    assert "--center" not in line and "sidecar" in line
+
+
+@pytest.mark.parametrize(
+    "kind",
+    [
+        "silent",  # all zeros: "no discrete line stands 10 dB above the noise ..."
+        "steady",  # a constant (a line at DC) 0.5 s long: "the recording (0.5 s) is too short ..."
+    ],
+)
+@pytest.mark.xfail(
+    reason="measure/drift.py raises MeasurementError without the recording's path, so "
+    "'iqscope drift FILE' prints one line that does not name the file (errors.py: the "
+    "line names the file)",
+    strict=False,
+)
+def test_drift_error_names_the_file(tmp_path: Path, capsys: pytest.CaptureFixture[str], kind: str) -> None:
+    x = np.zeros(N, np.complex64) if kind == "silent" else np.full(N, 0.3 + 0.1j, np.complex64)
+    meta = write_sigmf(tmp_path / f"{kind}-rec", x, FS, center_frequency_hz=F_FUND)
+    status, out, err = _run(capsys, ["drift", str(meta)])
+    lines = err.strip().splitlines()
+    assert status == EXIT_ERROR and out == "" and len(lines) == 1 and "Traceback" not in err
+    assert f"{kind}-rec" in lines[0], lines[0]

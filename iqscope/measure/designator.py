@@ -472,8 +472,11 @@ def _ssb_carrier_from_spectrum(ctx: AnalysisContext) -> tuple[CarrierLevel, str]
     if not np.any(sel):
         return "suppressed", "outside the recorded band, assumed suppressed"
     p_carrier = float(np.sum(np.clip(spec.psd[sel] - ctx.noise_floor_psd, 0.0, None)) * spec.bin_hz)
-    if p_carrier <= 0:
+    if not p_carrier > 0:  # also NaN (an overflowed spectrum)
         return "suppressed", "not detected above the noise"
-    below = 10.0 * math.log10(ctx.peak_power / p_carrier)
+    ratio = ctx.peak_power / p_carrier
+    if not (math.isfinite(ratio) and ratio > 0):
+        return "suppressed", "level unknown, assumed suppressed"
+    below = 10.0 * math.log10(ratio)
     level = ssb_carrier_level(below)
     return level, f"{below:.1f} dB below PEP ({level})"

@@ -224,7 +224,8 @@ def analyse_levels(rec: Recording, nfft: int | None = None, chunk: int = 1 << 18
     """
     if rec.center_frequency_hz is None:
         raise MetadataError(
-            "the capture centre frequency is unknown; harmonics need it (give it in the metadata or with --center)",
+            "the capture centre frequency is unknown; harmonics need it (give it in the metadata: SigMF "
+            "core:frequency, an HDF5 attribute, or the .iqscope.json sidecar of a WAV or raw file)",
             rec.path,
         )
     n = _choose_nfft(rec) if nfft is None else nfft
