@@ -251,3 +251,23 @@ def test_labels_and_json_doc_cover_every_key_the_providers_write() -> None:
     doc = (root.parent.parent / "docs" / "json.md").read_text(encoding="utf-8")
     missing = [k for k in PIPELINE_KEYS if f"`{k}`" not in doc]
     assert not missing, f"docs/json.md does not list {missing}"
+
+
+def test_am_index_shows_envelope_index_and_peaks() -> None:
+    """DESIGN.md section 3: the modulation index from the lines and from the envelope,
+    (Emax - Emin) / (Emax + Emin), plus the positive and negative peaks. Envelope 1.85 /
+    0.15 about a mean of 1: m = 1.7 / 2.0 = 0.85, peaks +85 % / 85 % (closed form)."""
+    e_max, e_min, e_mean = 1.85, 0.15, 1.0
+    m = Measurement(
+        0.85,
+        "1",
+        0.002,
+        details={
+            "index_envelope": (e_max - e_min) / (e_max + e_min),
+            "positive_peak": e_max / e_mean - 1.0,
+            "negative_peak": 1.0 - e_min / e_mean,
+        },
+    )
+    text = _table_text({"modulation_index": m}, mode="am")
+    assert "from the envelope" in text and "0.850" in text
+    assert "85 % / 85 %" in text

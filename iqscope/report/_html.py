@@ -16,7 +16,7 @@ from typing import Final
 from .. import __version__
 from ..grading import GradeResult
 from ._plots import PLOT_NAMES
-from ._text import SAFETY_POINTS, _limit_text, label, measurement_text, spur_caption, spur_rows
+from ._text import SAFETY_POINTS, _limit_text, detail_rows, label, measurement_text, spur_caption, spur_rows
 from ._theme import verdict_label
 from ._units import (
     format_count,
@@ -58,6 +58,8 @@ table { border-collapse: collapse; width: 100%; font-size: 0.95rem; }
 th, td { text-align: left; padding: 0.35rem 0.5rem; border-bottom: 1px solid var(--line); vertical-align: top; }
 td.value { text-align: right; white-space: nowrap; font-variant-numeric: tabular-nums; }
 td.bound { font-style: italic; }
+tr.detail td { color: var(--muted); font-size: 0.85rem; border-bottom: none; }
+tr.detail td.name { padding-left: 1.5rem; font-weight: 400; }
 table.spurs { font-size: 0.85rem; } table.spurs tr.receiver td { color: #6c3483; }
 td.limit { white-space: pre-line; }
 td.verdict { white-space: nowrap; font-weight: 700; }
@@ -81,6 +83,10 @@ footer { color: var(--muted); font-size: 0.8rem; margin-top: 2rem; }
   table.verdicts td.verdict { order: 1; text-align: right; }
   table.verdicts td.value { order: 2; text-align: left; }
   table.verdicts td.limit { order: 3; text-align: right; color: var(--muted); }
+  table.verdicts tr.detail { padding: 0.1rem 0; border-bottom: none; }
+  table.verdicts tr.detail td.name { font-weight: 400; padding-left: 1rem; }
+  table.verdicts tr.detail td.value { order: 1; text-align: right; }
+  table.verdicts tr.detail td.limit, table.verdicts tr.detail td.verdict { display: none; }
   table.spurs thead { display: none; }
   table.spurs tr { display: grid; grid-template-columns: 1fr auto; column-gap: 0.5rem;
                    border-bottom: 1px solid var(--line); padding: 0.3rem 0; }
@@ -131,6 +137,11 @@ def _table(result: GradeResult) -> str:
     for name, m in result.analysis.measurements.items():
         v = result.verdict_for(name)
         rows.append(_row(label(name, m), measurement_text(name, m), v, m.note, bound=m.limited_by_noise))
+        for sub, text in detail_rows(name, m):
+            rows.append(
+                f'<tr class="detail"><td class="name">{escape(sub.strip())}</td>'
+                f'<td class="value">{escape(text)}</td><td class="limit"></td><td class="verdict info"></td></tr>'
+            )
         shown.add(name)
     for v in result.verdicts:
         if v.measurement not in shown:

@@ -39,6 +39,7 @@ __all__ = [
     "SAFETY_POINTS",
     "label",
     "measurement_text",
+    "detail_rows",
     "spur_rows",
     "spur_caption",
     "render_spur_table",
@@ -228,6 +229,24 @@ def _limit_text(rule: Rule | None, ascii_only: bool, *, two_lines: bool = True) 
     return text
 
 
+def detail_rows(name: str, m: Measurement) -> list[tuple[str, str]]:
+    """Extra (label, value) rows under a measurement, from numbers its details carry.
+
+    ``modulation_index`` (DESIGN.md section 3: report the line and the envelope index, and
+    the positive and negative peaks): the envelope (trapezoid) index and the peaks in %.
+    """
+    if name != "modulation_index" or m.value is None:
+        return []
+    rows: list[tuple[str, str]] = []
+    env = _number(m.details.get("index_envelope"))
+    if env is not None:
+        rows.append(("  from the envelope", f"{env:.3f}"))
+    pos, neg = _number(m.details.get("positive_peak")), _number(m.details.get("negative_peak"))
+    if pos is not None and neg is not None:
+        rows.append(("  peaks (+ / -)", f"{100 * pos:.0f} % / {100 * neg:.0f} %"))
+    return rows
+
+
 def render_verdict_table(result: GradeResult, *, ascii_only: bool = False) -> Table:
     """Measurement, value ± uncertainty, limit, verdict: every measurement, graded or not."""
     table = Table(box=box.ASCII if ascii_only else box.SIMPLE_HEAD, pad_edge=False, expand=False)
@@ -240,6 +259,8 @@ def render_verdict_table(result: GradeResult, *, ascii_only: bool = False) -> Ta
         v = result.verdict_for(name)
         value = measurement_text(name, m, ascii_only=ascii_only)
         _add_row(table, label(name, m, ascii_only=ascii_only), value, v, ascii_only, bound=m.limited_by_noise)
+        for sub, text in detail_rows(name, m):
+            table.add_row(Text(sub, style="iqscope.muted"), Text(text, style="iqscope.muted"), "", "")
         shown.add(name)
     for v in result.verdicts:
         if v.measurement not in shown:
