@@ -258,3 +258,22 @@ def test_spectrum_draws_spurs_limit_and_receiver_lines() -> None:
     assert np.allclose(marks[0].get_xdata(), 16.0)  # kHz from the carrier
     texts = [t.get_text() for t in ax.texts]
     assert "receiver DC" in texts and "-61 dBc" in texts
+
+
+def test_carrier_limit_drawn_against_the_sideband_power() -> None:
+    """carrier_suppression_db = P_sidebands / P_carrier (DESIGN.md section 3): the 40 dB
+    limit line sits 40 dB below the stored sideband power (carrier power + the figure)."""
+    from grading_helpers import SIGNAL_DBFS, dsb_measurements
+
+    from iqscope.measure._result import Measurement
+    from iqscope.report._plots import spectrum_figure
+
+    ms = dsb_measurements(37.6)
+    ms["carrier_suppression_db"] = Measurement(
+        37.6, "dB", 0.2, details={"carrier_power_dbfs": SIGNAL_DBFS - 37.6}
+    )
+    fig = spectrum_figure(grade(dsb_analysis(37.6, measurements=ms, with_traces=False)))
+    labels = [t.get_text() for legend in fig.legends for t in legend.get_texts()]
+    assert "carrier limit: 40 dB below the sideband power" in labels
+    bar = [ln for ln in fig.axes[0].lines if ln.get_linewidth() == 2.0]
+    assert len(bar) == 1 and np.allclose(bar[0].get_ydata(), SIGNAL_DBFS - 40.0)

@@ -333,7 +333,14 @@ def _draw_mask(ax: Any, a: Analysis, masks: Mapping[str, float], centre: float, 
     sup = masks.get("carrier_suppression_db")
     if sup is not None and a.signal.carrier_offset_hz is not None:
         w = max((x1 - x0) * 0.04, 1e-9)
-        ax.plot([-w, w], [peak - sup] * 2, color=_MASK_COLOR, linewidth=2.0, label=f"carrier limit: peak -{sup:g} dB")
+        wanted = _sideband_power_dbfs(a)
+        if wanted is not None:
+            # Where the carrier line would read at the limit: sideband power - limit (the
+            # definition of carrier_suppression_db; a line reads its power in one RBW).
+            ax.plot([-w, w], [wanted - sup] * 2, color=_MASK_COLOR, linewidth=2.0,
+                    label=f"carrier limit: {sup:g} dB below the sideband power")
+        else:
+            ax.plot([-w, w], [peak - sup] * 2, color=_MASK_COLOR, linewidth=2.0, label=f"carrier limit: peak -{sup:g} dB")
     opp = masks.get("opposite_sideband_suppression_db")
     if opp is not None and "obw_lower" in m and "obw_upper" in m and a.signal.carrier_offset_hz is not None:
         c = a.signal.carrier_offset_hz
@@ -346,6 +353,18 @@ def _draw_mask(ax: Any, a: Analysis, masks: Mapping[str, float], centre: float, 
             linestyle="-.",
             label=f"opposite sideband limit: peak -{opp:g} dB",
         )
+
+
+def _sideband_power_dbfs(a: Analysis) -> float | None:
+    """Wanted sideband power in dBFS from the stored carrier figure: its value (dB) plus the
+    carrier's power, or the noise bound on it, that the figure was taken against."""
+    m = a.measurements.get("carrier_suppression_db")
+    if m is None or m.value is None:
+        return None
+    carrier = m.details.get("carrier_power_dbfs", m.details.get("carrier_upper_bound_dbfs"))
+    if not isinstance(carrier, (int, float)) or not math.isfinite(carrier):
+        return None
+    return float(carrier) + m.value
 
 
 def _hz_text(hz: float) -> str:
