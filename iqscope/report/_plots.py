@@ -174,14 +174,21 @@ def spectrum_figure(result: GradeResult) -> Figure:
     return fig
 
 
+def _finite(x: object) -> float | None:
+    """A stored number as a float, or None when it is missing, not a number or not finite."""
+    if isinstance(x, bool) or not isinstance(x, (int, float)) or not math.isfinite(x):
+        return None
+    return float(x)
+
+
 def _spur_info(result: GradeResult) -> dict[str, Any] | None:
     """What the spur figure stored: reference (dBFS), domain, lines and the graded limit."""
     m = result.analysis.measurements.get("worst_spur_dbc")
     if m is None:
         return None
     d = m.details
-    ref, centre, boundary = d.get("reference_dbfs"), d.get("emission_centre_hz"), d.get("spurious_boundary_hz")
-    if not all(isinstance(x, (int, float)) and math.isfinite(x) for x in (ref, centre, boundary)):
+    ref, centre, boundary = (_finite(d.get(k)) for k in ("reference_dbfs", "emission_centre_hz", "spurious_boundary_hz"))
+    if ref is None or centre is None or boundary is None:
         return None
     v = result.verdict_for("worst_spur_dbc")
     limit = None if v is None or v.rule is None else v.rule.pass_bound.max
@@ -191,7 +198,7 @@ def _spur_info(result: GradeResult) -> dict[str, Any] | None:
         if isinstance(s, Mapping) and s.get("domain") == "spurious" and not s.get("artefact")
         and isinstance(s.get("offset_hz"), (int, float)) and isinstance(s.get("level_dbc"), (int, float))
     ]
-    return {"ref": float(ref), "centre": float(centre), "boundary": float(boundary), "limit": limit,
+    return {"ref": ref, "centre": centre, "boundary": boundary, "limit": limit,
             "lines": lines, "worst": m.value if not m.limited_by_noise else None}
 
 
@@ -416,11 +423,11 @@ def _worst_window(a: Analysis) -> tuple[float, float, str] | None:
     m = a.measurements.get("drift_worst_window_hz")
     if m is None or m.value is None:
         return None
-    start, span = m.details.get("window_start_s"), m.details.get("window_s")
-    if not all(isinstance(x, (int, float)) and math.isfinite(x) for x in (start, span)):
+    start, span = _finite(m.details.get("window_start_s")), _finite(m.details.get("window_s"))
+    if start is None or span is None:
         return None
     what = "at most " if m.limited_by_noise else ""
-    return float(start), float(span), f"worst {float(span):g}-s window: {what}{m.value:.3g} Hz peak-to-peak"
+    return start, span, f"worst {span:g}-s window: {what}{m.value:.3g} Hz peak-to-peak"
 
 
 def _line_figure(

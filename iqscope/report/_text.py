@@ -1,9 +1,12 @@
 """Text report (rich): one small renderer per section, the Console always injected.
 
 Sections of a graded recording: :func:`render_header` (recording, mode, carrier, limits),
-:func:`render_verdict_table` (measurement, value ± uncertainty, limit, verdict),
-:func:`render_notes` (reasons, receiver artefacts, advice) and :func:`render_caution`.
-:func:`print_grade` prints them all. Renderers never compute a measurement.
+:func:`render_verdict_table` (measurement, value ± uncertainty or the noise-limited bound,
+limit, verdict; what the details add, e.g. the emission designator), :func:`render_spur_table`
+(the lines outside the necessary band, receiver artefacts marked), :func:`render_notes`
+(reasons, receiver artefacts, advice) and :func:`render_caution`. :func:`print_grade`
+prints them all. :func:`label`, :func:`measurement_text` and :func:`spur_rows` are shared
+with the HTML report. Renderers never compute a measurement: they look stored numbers up.
 """
 
 from __future__ import annotations
