@@ -170,6 +170,13 @@ def _nan_samples(d: Path) -> Path:
     return write_sigmf(d / "nans", x, FS, center_frequency_hz=F_FUND)
 
 
+def _absurd_float_values(d: Path) -> Path:
+    """Float components of 1e19 (a damaged or mis-typed cf32 file): treated like NaN."""
+    x = _tone()
+    x[::89] = 1e19 + 0j
+    return write_sigmf(d / "loud", x, FS, center_frequency_hz=F_FUND)
+
+
 def _hostile_dataset_path(d: Path) -> Path:
     (d / "secret.bin").write_bytes(bytes(8 * N))
     sub = d / "rec"
@@ -220,6 +227,7 @@ CASES: dict[str, tuple[Callable[[Path], Path], bool, str]] = {
     "lying-data-chunk-size": (_lying_data_size, True, "claims"),
     "hdf5-without-dataset": (_hdf5_unusable, False, "no usable"),
     "nan-samples": (_nan_samples, True, "non-finite"),
+    "absurd-float-values": (_absurd_float_values, True, "non-finite"),
     "hostile-dataset-path": (_hostile_dataset_path, False, "refusing"),
     "symlink-outside": (_symlink_outside, False, "outside"),
     "directory": (_directory, False, ""),
@@ -720,3 +728,28 @@ def test_drift_error_names_the_file(tmp_path: Path, capsys: pytest.CaptureFixtur
     lines = err.strip().splitlines()
     assert status == EXIT_ERROR and out == "" and len(lines) == 1 and "Traceback" not in err
     assert f"{kind}-rec" in lines[0], lines[0]
+
+
+@pytest.mark.parametrize("cmd", ["grade", "inspect"])
+def test_all_absurd_float_file(tmp_path: Path, capsys: pytest.CaptureFixture[str], cmd: str) -> None:
+    """512 bytes of cf32 holding a 1e19 tone once made ``grade`` end in a ValueError
+    traceback (float32 spectrum overflow in dsp). The io layer now treats components
+    beyond 1e10 x full scale like NaN: replaced by 0, counted, warned."""
+    x = (1e19 * np.exp(2j * np.pi * 0.125 * np.arange(64))).astype("<c8")
+    (tmp_path / "loud.cf32").write_bytes(x.tobytes())
+    status, out, err = _run(capsys, [cmd, str(tmp_path / "loud.cf32"), "--rate", "8000", "--json"]
+                            + (["--mode", "cw"] if cmd == "grade" else []))
+    assert status in (0, 1, 2) and "Traceback" not in err, err
+    assert any("non-finite" in w for w in json.loads(out)["warnings"])
+
+
+def test_float_component_limit() -> None:
+    """The limit is inclusive: 1e10 is kept, the next float32 above it is replaced."""
+    from iqscope.io import ArrayRecording
+    from iqscope.io._recording import MAX_FLOAT_COMPONENT
+
+    above = float(np.nextafter(np.float32(MAX_FLOAT_COMPONENT), np.float32(np.inf)))
+    rec = ArrayRecording(np.array([MAX_FLOAT_COMPONENT, 1j * above, -above, 0.5, np.nan], np.complex64), FS)
+    got = rec.read()
+    assert got[0] == np.complex64(MAX_FLOAT_COMPONENT) and got[3] == 0.5
+    assert list(got[[1, 2, 4]]) == [0, 0, 0] and rec.nonfinite_count == 3

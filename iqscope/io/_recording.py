@@ -7,7 +7,10 @@ and annotations. Samples are read on demand as complex64 blocks scaled so that
 
 Non-finite samples (NaN or Inf in a float file) are never handed on: :meth:`Recording.read`
 replaces each such sample by 0 and counts it (:attr:`Recording.nonfinite_count`); once a
-read has met one, :attr:`Recording.warnings` says how many were replaced so far.
+read has met one, :attr:`Recording.warnings` says how many were replaced so far. A float
+component beyond :data:`MAX_FLOAT_COMPONENT` (200 dB above full scale, which no receiver
+delivers; damaged or mis-typed data does) is treated the same way, so that the float32
+powers and spectra computed from the blocks cannot overflow to Inf/NaN.
 """
 
 from __future__ import annotations
@@ -27,6 +30,10 @@ __all__ = ["Annotation", "Segment", "Recording", "ArrayRecording", "check_sample
 
 #: Upper bound on a believable sample rate (Hz). No receiver we serve comes near it.
 MAX_SAMPLE_RATE_HZ = 1e11
+#: Largest believable magnitude of a float sample component (full scale is 1): 1e10 is
+#: 200 dB above full scale. Larger components are replaced by 0 and counted like NaN/Inf;
+#: below it a 2^24-point FFT's power (<= (2^24 * 1e10)^2 ~ 3e34) stays inside float32.
+MAX_FLOAT_COMPONENT = 1e10
 
 
 @dataclass(frozen=True)
@@ -143,7 +150,8 @@ class Recording:
         if self._nonfinite:
             return (
                 *self._warnings,
-                f"{self._nonfinite} non-finite sample(s) (NaN/Inf) replaced by 0 in the samples read so far",
+                f"{self._nonfinite} non-finite sample(s) (NaN/Inf, or a component beyond "
+                f"{MAX_FLOAT_COMPONENT:.0e} x full scale) replaced by 0 in the samples read so far",
             )
         return self._warnings
 
@@ -202,7 +210,8 @@ class Recording:
 
         ``count=None`` reads to the end (mind the memory on a large file). Reads past the
         end are shortened; a negative start or count raises ``ValueError``. NaN/Inf samples
-        come back as 0 and are counted in :attr:`nonfinite_count`.
+        (and float components beyond :data:`MAX_FLOAT_COMPONENT`) come back as 0 and are
+        counted in :attr:`nonfinite_count`.
         """
         if start < 0:
             raise ValueError(f"{start=} must be >= 0")
@@ -215,7 +224,13 @@ class Recording:
             return np.zeros(0, np.complex64)
         out = np.asarray(self._read(start, stop - start), dtype=np.complex64)
         if self.datatype.startswith("cf"):
-            bad = ~np.isfinite(out)
+            v = np.ascontiguousarray(out).view(np.float32)
+            # NaN propagates through max/min and fails the comparison: two cheap
+            # reductions in the common case (faster than isfinite)
+            if float(v.max()) <= MAX_FLOAT_COMPONENT and float(v.min()) >= -MAX_FLOAT_COMPONENT:
+                bad = np.zeros(0, bool)
+            else:
+                bad = ~(np.abs(v) <= MAX_FLOAT_COMPONENT).reshape(-1, 2).all(axis=1)
             if bad.any():
                 # count each bad sample once on a front-to-back pass (overlaps not re-counted)
                 lo = max(start, self._nonfinite_until) - start
