@@ -294,3 +294,19 @@ def test_demo_recordings_grade_as_documented(
     assert {v["measurement"]: v["status"] for v in doc["verdicts"] if v["status"] != "pass"} == not_passing
     spur = next(v for v in doc["verdicts"] if v["measurement"] == "worst_spur_dbc")
     assert spur["status"] == "pass" and spur["value"] < -85.0
+
+
+def test_every_figure_a_limit_can_grade_has_advice() -> None:
+    """A user may write a rule for any figure a builder can act on; each gets advice."""
+    from iqscope.grading._advice import advice_for
+
+    actionable = [
+        "carrier_suppression_db", "carrier_below_pep_db", "opposite_sideband_suppression_db",
+        "sideband_balance_db", "modulation_index", "occupied_bandwidth_hz", "bandwidth_26db_hz",
+        "necessary_bandwidth_hz", "imd3_dbc", "imd5_dbc", "imd7_dbc", "imd3_db_pep", "imd5_db_pep",
+        "imd7_db_pep", "tone_balance_db", "worst_spur_dbc", "frequency_error_hz", "drift_hz_per_min",
+        "drift_peak_to_peak_hz", "drift_worst_window_hz", "warmup_settling_s", "allan_deviation",
+        "clipped_fraction", "peak_dbfs",
+    ]
+    for key in actionable:
+        assert advice_for(key, "usb"), key

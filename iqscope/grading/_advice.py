@@ -52,8 +52,18 @@ _BY_MEASUREMENT: Final[Mapping[str, str]] = {
     "imd3_dbc": "overdriven: reduce drive or audio level, check the bias of the linear stages",
     "imd3_db_pep": "overdriven: reduce drive or audio level, check the bias of the linear stages",
     "imd5_dbc": "overdriven: reduce drive or audio level, check the bias of the linear stages",
+    "imd7_dbc": "overdriven: reduce drive or audio level, check the bias of the linear stages",
+    "imd5_db_pep": "overdriven: reduce drive or audio level, check the bias of the linear stages",
+    "imd7_db_pep": "overdriven: reduce drive or audio level, check the bias of the linear stages",
+    "tone_balance_db": "tones unequal: set the two audio tones to equal level and check the audio "
+    "and filter response across them (a tilt makes one tone stronger)",
     "worst_spur_dbc": "spur too strong: check the output low-pass filter, mixer products and "
-    "screening",
+    "screening; step the attenuation to see whether it is the receiver's (it then moves about 3:1)",
+    "necessary_bandwidth_hz": "bandwidth wide: reduce audio drive / check audio low-pass",
+    "frequency_error_hz": "off frequency: trim the carrier oscillator (and check the receiver's own "
+    "frequency error with --reference)",
+    "warmup_settling_s": _DRIFT,
+    "allan_deviation": _DRIFT,
     "clipped_fraction": ARTEFACT_ADVICE["clipping"],
     "peak_dbfs": "the signal is close to the receiver's full scale: add attenuation",
     "drift_hz_per_min": _DRIFT,
