@@ -271,3 +271,23 @@ def test_am_index_shows_envelope_index_and_peaks() -> None:
     text = _table_text({"modulation_index": m}, mode="am")
     assert "from the envelope" in text and "0.850" in text
     assert "85 % / 85 %" in text
+
+
+def test_not_measured_figures_say_why_once_per_reason() -> None:
+    why = "not measured: only 7 of 7 blocks had the line above the noise (need 8)."
+    ms = {
+        "drift_hz_per_min": Measurement(None, "Hz/min", note=why),
+        "allan_deviation": Measurement(None, "1", note=why),
+        "necessary_bandwidth_hz": Measurement(None, "Hz", note="the emission is a single line"),
+    }
+    text = _table_text(ms, mode="cw")
+    assert text.count("not measured") == 3  # the value cells
+    from grading_helpers import analysis_with
+
+    from iqscope.report._text import unmeasured_notes
+
+    notes = unmeasured_notes(grade(analysis_with("cw", ms)))
+    assert notes == [
+        "drift rate, Allan deviation: only 7 of 7 blocks had the line above the noise (need 8).",
+        "necessary bandwidth: the emission is a single line",
+    ]

@@ -16,7 +16,16 @@ from typing import Final
 from .. import __version__
 from ..grading import GradeResult
 from ._plots import PLOT_NAMES
-from ._text import SAFETY_POINTS, _limit_text, detail_rows, label, measurement_text, spur_caption, spur_rows
+from ._text import (
+    SAFETY_POINTS,
+    _limit_text,
+    detail_rows,
+    label,
+    measurement_text,
+    spur_caption,
+    spur_rows,
+    unmeasured_notes,
+)
 from ._theme import verdict_label
 from ._units import (
     format_count,
@@ -207,6 +216,10 @@ def _notes(result: GradeResult) -> str:
     if advice:
         items = "".join(f'<li class="advice">{escape(t)}</li>' for t in advice)
         out.append(f"<h3>Advice</h3><ul>{items}</ul>")
+    missing = unmeasured_notes(result)
+    if missing:
+        items = "".join(f"<li>{escape(t)}</li>" for t in missing)
+        out.append(f"<h3>Not measured</h3><ul>{items}</ul>")
     if result.skipped:
         items = "".join(f"<li>{escape(t)}</li>" for t in result.skipped)
         out.append(f"<h3>Not graded</h3><ul>{items}</ul>")

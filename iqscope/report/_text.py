@@ -44,6 +44,7 @@ __all__ = [
     "measurement_text",
     "detail_rows",
     "spur_rows",
+    "unmeasured_notes",
     "spur_caption",
     "render_spur_table",
     "render_header",
@@ -441,6 +442,21 @@ def _bullets(items: Sequence[str], style: str, bullet: str) -> Table:
     return grid
 
 
+def unmeasured_notes(result: GradeResult) -> list[str]:
+    """Why each ungraded figure shown as "not measured" was not: one line per reason,
+    naming the figures it covers (graded ones already say why under "why")."""
+    by_note: dict[str, list[str]] = {}
+    for name, m in result.analysis.measurements.items():
+        if m.value is not None or result.verdict_for(name) is not None:
+            continue
+        note = m.note.strip() or "no reason given"
+        for prefix in ("not measured: ", "not measured "):
+            if note.lower().startswith(prefix):
+                note = note[len(prefix):]
+        by_note.setdefault(note, []).append(label(name, m))
+    return [f"{', '.join(names)}: {note}" for note, names in by_note.items()]
+
+
 def render_notes(result: GradeResult, *, ascii_only: bool = False) -> RenderableType:
     """Overall verdict, reasons for non-passing verdicts, receiver artefacts and advice."""
     bullet = "*" if ascii_only else "\u2022"
@@ -464,6 +480,10 @@ def render_notes(result: GradeResult, *, ascii_only: bool = False) -> Renderable
     if advice:
         parts.append(Text("\nadvice", style="iqscope.label"))
         parts.append(_bullets(advice, "iqscope.advice", bullet))
+    missing = unmeasured_notes(result)
+    if missing:
+        parts.append(Text("\nnot measured", style="iqscope.label"))
+        parts.append(_bullets(missing, "iqscope.muted", bullet))
     if result.skipped:
         parts.append(Text("\nnot graded", style="iqscope.label"))
         parts.append(_bullets(list(result.skipped), "iqscope.muted", bullet))
