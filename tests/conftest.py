@@ -26,11 +26,12 @@ def rng() -> np.random.Generator:
 
 
 # -- hypothesis profiles (issue 6, fuzzing; see docs/robustness.md) --------------------
-# "ci" (default) keeps every property test without its own max_examples short; "long"
+# "ci" (default) keeps every property test without its own max_examples short and
+# repeatable (derandomized); "long" (random, 5000 examples)
 # is the developers' fuzz run: pytest ... --hypothesis-profile=long. The pytest plugin
 # of hypothesis loads the profile named by --hypothesis-profile after this file.
 from hypothesis import settings as _hyp_settings  # noqa: E402
 
-_hyp_settings.register_profile("ci", max_examples=60, deadline=None)
-_hyp_settings.register_profile("long", max_examples=5000, deadline=None)
+_hyp_settings.register_profile("ci", max_examples=100, deadline=None, derandomize=True, print_blob=True)
+_hyp_settings.register_profile("long", max_examples=5000, deadline=None, print_blob=True)
 _hyp_settings.load_profile("ci")
