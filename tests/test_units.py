@@ -51,6 +51,8 @@ def test_tiny_values_in_scientific_notation() -> None:
     assert format_value(3.46e-13, "1", 3.46e-13) == "(3 ± 3)e-13"
     assert format_value(1.165e-5, "Hz", 4.4e-6) == "(1.2 ± 0.4)e-05 Hz"
     assert format_value(2e-4, "1") == "2.0e-04"
+    # ... but a tiny value with an uncertainty above 1e-3 reads in fixed digits
+    assert format_value(8e-4, "Hz", 5.9e-3) == "0.001 ± 0.006 Hz"
     assert format_bound(1.165e-5, "Hz", "upper") == "≤ 1.2e-05 Hz (noise-limited)"
     assert format_bound(0.83, "Hz", "upper") == "≤ 0.830 Hz (noise-limited)"
 

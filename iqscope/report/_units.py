@@ -128,7 +128,9 @@ def format_value(
     _, _, pm = ge_le(ascii_only)
     family = _family(unit)
     u = uncertainty if uncertainty is not None and math.isfinite(uncertainty) and uncertainty > 0 else None
-    if family != "dB" and unit != "W" and value != 0.0 and abs(value) < _TINY:
+    if family != "dB" and unit != "W" and value != 0.0 and abs(value) < _TINY and not (u is not None and u >= _TINY):
+        # Tiny and known to tiny digits: scientific. A tiny value with a larger uncertainty
+        # reads better in fixed digits ("0.001 ± 0.006 Hz", not "(8 ± 59)e-04 Hz").
         return _scientific(value, u, unit, pm)
     factor, shown_unit = _si_scale(unit, abs(value) if value != 0 else (u or 0.0), ascii_only)
     v = value / factor
