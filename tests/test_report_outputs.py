@@ -235,7 +235,7 @@ def test_html_shows_spur_table_bounds_and_designator() -> None:
     assert "2.100 ± 0.003 kHz (2K10A3E)" in text
     assert "Spurs" in text and '<table class="spurs">' in html
     assert '<tr class="receiver"><td class="line">7.100000 MHz</td>' in html
-    assert "receiver DC offset" in text and "+16.000 kHz" in text and "-61.3 ± 0.4 dBc" in text
+    assert "receiver DC" in text and "+16.000 kHz" in text and "-61.3 ± 0.4 dBc" in text
 
 
 def test_spectrum_draws_spurs_limit_and_receiver_lines() -> None:

@@ -49,8 +49,8 @@ beyond ±15.00 kHz of the emission centre (250 % of the 6.00 kHz necessary
 bandwidth, SM.1539), 14.58 kHz of it recorded
 
 line            re carrier             level   domain        what
-───────────────────────────────────────────────────────────────────────────────
-7.100000 MHz    -3.210 kHz         -52.0 dBc   out-of-band   receiver DC offset
+────────────────────────────────────────────────────────────────────────
+7.100000 MHz    -3.210 kHz         -52.0 dBc   out-of-band   receiver DC
 7.119210 MHz   +16.000 kHz   -61.3 ± 0.4 dBc   spurious
 
 overall  ✘ FAIL
@@ -212,11 +212,11 @@ def test_spur_table_marks_receiver_artefacts() -> None:
     rows, left = spur_rows(result)
     assert left == 0 and len(rows) == 2
     dc, spur = rows
-    assert dc[4] == "receiver DC offset" and dc[3] == "out-of-band" and dc[1] == "-3.210 kHz"
+    assert dc[4] == "receiver DC" and dc[3] == "out-of-band" and dc[1] == "-3.210 kHz"
     assert spur[0] == "7.119210 MHz" and spur[1] == "+16.000 kHz" and spur[3] == "spurious"
     assert spur[2] == "-61.3 ± 0.4 dBc" and spur[4] == ""
     text = render(result)
-    assert "spurs\n" in text and "receiver DC offset" in text
+    assert "spurs\n" in text and "receiver DC" in text
 
 
 def test_no_spur_table_without_lines() -> None:

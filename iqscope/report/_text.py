@@ -296,10 +296,10 @@ def _signed_zero(x: float) -> str:
     return "0.0" if text == "-0.0" else text
 
 _ARTEFACT_WORDS: Final[Mapping[str, str]] = {
-    "dc": "receiver DC offset",
-    "dc_line": "receiver DC offset",
-    "iq_image": "receiver I/Q image",
-    "iq": "receiver I/Q image",
+    "dc": "receiver DC",
+    "dc_line": "receiver DC",
+    "iq_image": "receiver image",
+    "iq": "receiver image",
 }
 
 _MARKER_WORDS: Final[Mapping[str, str]] = {
