@@ -276,3 +276,29 @@ def test_huge_samples_from_a_recording_that_bypasses_read() -> None:
             analyse(Loud(), AnalysisRequest(mode="cw"))
         except IqscopeError:
             pass
+
+
+def test_grade_refuses_an_absurdly_fine_resolution() -> None:
+    """``--resolution 1e-300`` once ended in an OverflowError traceback; now a usage error."""
+    with tempfile.TemporaryDirectory() as d:
+        (Path(d) / "r.sigmf-meta").write_text(json.dumps(SKELETON))
+        (Path(d) / "r.sigmf-data").write_bytes(DATA)
+        with pytest.raises(SystemExit) as exc:
+            _grade_cli(["grade", str(Path(d) / "r.sigmf-meta"), "--resolution", "1e-300"])
+    assert exc.value.code == 4
+
+
+@pytest.mark.xfail(
+    reason="measure/pipeline.py plan_pass: int(math.ceil(fs / resolution)) before the 2^22 clamp "
+    "overflows (OverflowError) for a tiny resolution_hz; the CLI now refuses < 1e-6 Hz, "
+    "library callers are not protected",
+    strict=False,
+)
+@pytest.mark.parametrize("resolution", [1e-300, 5e-324])
+def test_plan_pass_tiny_resolution(resolution: float) -> None:
+    """plan_pass(8000.0, 2048, 1e-300) -> OverflowError: Python int too large to convert to
+    C ssize_t (5e-324: cannot convert float infinity to integer)."""
+    from iqscope.measure import plan_pass
+
+    plan = plan_pass(8000.0, 2048, resolution)
+    assert plan.nfft <= 1 << 22

@@ -54,6 +54,18 @@ def _positive_hz(text: str) -> float:
     return value
 
 
+#: Finest ``--resolution`` accepted, Hz: finer is no spectrum any recording gives (the
+#: pipeline clamps the FFT to 2^22 points anyway), and fs / 1e-300 overflowed its planner.
+MIN_RESOLUTION_HZ = 1e-6
+
+
+def _resolution(text: str) -> float:
+    value = _positive_hz(text)
+    if value < MIN_RESOLUTION_HZ:
+        raise argparse.ArgumentTypeError(f"{text!r} is finer than {MIN_RESOLUTION_HZ:g} Hz")
+    return value
+
+
 def _seconds(text: str) -> float:
     try:
         value = float(text)
@@ -87,7 +99,7 @@ def register(subparsers: Any) -> None:
         help="carrier frequency: within +/- fs/2 an offset from the capture centre, else absolute RF",
     )
     s.add_argument("--tone", metavar="HZ", type=_positive_hz, help="the test tone's audio frequency (SSB)")
-    s.add_argument("--resolution", metavar="HZ", type=_positive_hz, help="spectrum bin spacing (default: from the signal)")
+    s.add_argument("--resolution", metavar="HZ", type=_resolution, help="spectrum bin spacing (default: from the signal)")
     s.add_argument("--reference", metavar="HZ", type=_hz, help="a stable reference line for drift (offset or absolute)")
     s.add_argument("--drift-window", metavar="S", type=_seconds, default=120.0, help="window for the worst drift excursion, s (default 120)")
     s.add_argument("--calibration", metavar="FILE", help="calibration from 'iqscope calibrate' (power in dBm and W)")
