@@ -753,3 +753,50 @@ def test_float_component_limit() -> None:
     got = rec.read()
     assert got[0] == np.complex64(MAX_FLOAT_COMPONENT) and got[3] == 0.5
     assert list(got[[1, 2, 4]]) == [0, 0, 0] and rec.nonfinite_count == 3
+
+
+@pytest.mark.parametrize("cmd", ["grade", "inspect", "sweep", "calibrate"])
+@pytest.mark.parametrize("rate", ["1e-300", "5e-324", "0.0009"])
+def test_tiny_rate_is_refused(tmp_path: Path, capsys: pytest.CaptureFixture[str], cmd: str, rate: str) -> None:
+    """--rate 1e-300 once ended in OverflowError tracebacks (grade, sweep) or invalid JSON
+    (inspect); rates below 1 mHz are now unusable metadata like a negative one."""
+    meta = _good_meta(tmp_path, "slow")
+    argv = _argv(cmd, meta, tmp_path) + [f"--rate={rate}"]
+    status, out, err = _run(capsys, argv)
+    assert status == EXIT_INPUT and out == "" and "Traceback" not in err, err
+    assert "sample rate" in err and len(err.strip().splitlines()) == 1
+
+
+@pytest.mark.parametrize("flag", ["--level-dbm", "--attenuation-db", "--level-uncertainty-db"])
+def test_calibrate_refuses_absurd_levels(tmp_path: Path, capsys: pytest.CaptureFixture[str], flag: str) -> None:
+    """``--level-dbm 1e308 --attenuation-db 1e308`` made the offset Inf and ended in a
+    ValueError traceback from strict JSON; such values are usage errors now."""
+    meta = _good_meta(tmp_path, "ref")
+    argv = ["calibrate", str(meta), "--level-dbm", "-10", "-o", str(tmp_path / "c.json"), "--json", f"{flag}=1e308"]
+    status, out, err = _run(capsys, argv)
+    assert status == 4 and "Traceback" not in err and flag in err, err
+    assert not (tmp_path / "c.json").exists()
+
+
+@pytest.mark.xfail(
+    reason="measure/drift.py (line ~1470): IndexError 'deque index out of range' for a "
+    "window of 5e-324 s (cli/_drift.py positive_seconds accepts any positive float)",
+    strict=False,
+)
+def test_drift_tiny_window(tmp_path: Path, capsys: pytest.CaptureFixture[str]) -> None:
+    """iqscope drift fund.sigmf-meta --window=5e-324 (1 s carrier at 1 kHz, 8 kS/s)."""
+    meta = write_sigmf(tmp_path / "fund", _tone(8000), FS, center_frequency_hz=F_FUND)
+    status, _out, err = _run(capsys, ["drift", str(meta), "--json", "--window=5e-324"])
+    assert status in (0, 4, 5) and "Traceback" not in err
+
+
+@pytest.mark.xfail(
+    reason="measure/drift.py (line ~827): OverflowError 'cannot convert float infinity to "
+    "integer' for --block 1e308 (cli/_drift.py positive_seconds accepts it)",
+    strict=False,
+)
+def test_drift_huge_block(tmp_path: Path, capsys: pytest.CaptureFixture[str]) -> None:
+    """iqscope drift fund.sigmf-meta --block=1e308."""
+    meta = write_sigmf(tmp_path / "fund", _tone(8000), FS, center_frequency_hz=F_FUND)
+    status, _out, err = _run(capsys, ["drift", str(meta), "--json", "--block=1e308"])
+    assert status in (0, 4, 5) and "Traceback" not in err

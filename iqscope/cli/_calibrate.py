@@ -18,6 +18,9 @@ from ..errors import UsageError
 
 __all__ = ["register", "run"]
 
+#: Largest magnitude accepted for the dB and dBm options (far beyond any real chain).
+MAX_DB = 1000.0
+
 
 def _hz(text: str) -> float:
     from ._inspect import parse_hz
@@ -76,6 +79,10 @@ def run(args: argparse.Namespace) -> int:
         raise UsageError("--attenuation-db must be >= 0 (an attenuation, not a gain)")
     if args.level_uncertainty_db < 0:
         raise UsageError("--level-uncertainty-db must be >= 0")
+    for flag, value in (("--level-dbm", args.level_dbm), ("--attenuation-db", args.attenuation_db),
+                        ("--level-uncertainty-db", args.level_uncertainty_db)):
+        if abs(value) > MAX_DB:  # 1e308 dB made the offset Inf and the JSON invalid
+            raise UsageError(f"{flag} {value:g} is beyond +/- {MAX_DB:g} dB")
     check_can_write(args.output, force=args.force)  # before reading a long recording
     with open_recording(args.reference, format=args.format, rate=args.rate, center=args.center) as rec:
         cal = make_calibration(

@@ -30,6 +30,9 @@ __all__ = ["Annotation", "Segment", "Recording", "ArrayRecording", "check_sample
 
 #: Upper bound on a believable sample rate (Hz). No receiver we serve comes near it.
 MAX_SAMPLE_RATE_HZ = 1e11
+#: Lower bound (Hz): below it durations and bin counts overflow (a rate of 1e-300 Hz
+#: ended in OverflowError tracebacks); no I/Q recording comes near it.
+MIN_SAMPLE_RATE_HZ = 1e-3
 #: Largest believable magnitude of a float sample component (full scale is 1): 1e10 is
 #: 200 dB above full scale. Larger components are replaced by 0 and counted like NaN/Inf;
 #: below it a 2^24-point FFT's power (<= (2^24 * 1e10)^2 ~ 3e34) stays inside float32.
@@ -72,7 +75,7 @@ def check_sample_rate(rate: Any, path: str | Path | None = None) -> float:
     """Return ``rate`` as a float if it is a believable sample rate, else raise.
 
     Raises:
-        MetadataError: missing, non-numeric, NaN, zero, negative or above 100 GHz.
+        MetadataError: missing, non-numeric, NaN, zero, negative, below 1 mHz or above 100 GHz.
     """
     if rate is None:
         raise MetadataError("no sample rate in the metadata; give it with --rate HZ", path)
@@ -84,6 +87,8 @@ def check_sample_rate(rate: Any, path: str | Path | None = None) -> float:
         raise MetadataError(f"sample rate {rate!r} is not a number", path) from None
     if not math.isfinite(value) or value <= 0 or value > MAX_SAMPLE_RATE_HZ:
         raise MetadataError(f"sample rate {rate!r} Hz is not usable (must be > 0 and finite)", path)
+    if value < MIN_SAMPLE_RATE_HZ:
+        raise MetadataError(f"sample rate {rate!r} Hz is not usable (below {MIN_SAMPLE_RATE_HZ:g} Hz)", path)
     return value
 
 
