@@ -28,7 +28,7 @@ import functools
 import math
 from collections.abc import Sequence
 from dataclasses import dataclass
-from typing import Literal
+from typing import Any, Literal
 
 import numpy as np
 import numpy.typing as npt
@@ -50,6 +50,8 @@ __all__ = [
     "crlb_frequency_std",
     "estimate_tone",
     "estimate_tones",
+    "estimate_rows",
+    "same_search",
     "find_lines",
 ]
 
@@ -405,6 +407,231 @@ def estimate_tones(
             )
         )
     return out
+
+
+def _row_median(values: npt.NDArray[np.float64], mask: npt.NDArray[np.bool_]) -> npt.NDArray[np.float64]:
+    """Median of each row's masked entries (as ``np.median``: mean of the middle two)."""
+    v = np.where(mask, values, np.inf)
+    v.sort(axis=1)
+    c = mask.sum(axis=1)
+    r = np.arange(v.shape[0])
+    lo = v[r, np.maximum(c - 1, 0) // 2]
+    hi = v[r, c // 2 if v.shape[1] else 0]
+    return np.asarray(0.5 * (lo + hi), dtype=np.float64)
+
+
+def _derivs_rows(
+    x: npt.NDArray[np.complex128], m: npt.NDArray[np.float64], w: npt.NDArray[np.float64]
+) -> tuple[npt.NDArray[np.complex128], npt.NDArray[np.float64], npt.NDArray[np.float64]]:
+    """:func:`_periodogram_derivs` for each row of ``x`` at its own ``w``."""
+    n = m.size
+    step = 32
+    q = -(-n // step)
+    # exp(-j w m[i]) with m[i] = m[0] + step a + b: two small exponentials, one product
+    coarse = np.exp(-1j * w[:, None] * (m[0] + step * np.arange(q))[None, :])
+    fine = np.exp(-1j * w[:, None] * np.arange(step)[None, :])
+    e = (coarse[:, :, None] * fine[:, None, :]).reshape(w.size, q * step)[:, :n]
+    z = x * e
+    r = np.matmul(_moments(m), z.view(np.float64).reshape(z.shape[0], -1, 2))  # (rows, 3, 2)
+    x0 = r[:, 0, 0] + 1j * r[:, 0, 1]
+    x1 = r[:, 1, 1] - 1j * r[:, 1, 0]
+    x2 = -(r[:, 2, 0] + 1j * r[:, 2, 1])
+    d1 = 2.0 * (x0.conj() * x1).real
+    d2 = 2.0 * (np.abs(x1) ** 2 + (x0.conj() * x2).real)
+    return x0, d1, d2
+
+
+def estimate_rows(
+    x: npt.ArrayLike,
+    sample_rate_hz: float,
+    centers_hz: npt.ArrayLike,
+    span_hz: float,
+    *,
+    pad: int = 2,
+    iterations: int = 4,
+    window: Window = "rect",
+    noise_band_hz: tuple[float, float] | None = None,
+) -> dict[str, npt.NDArray[Any]]:
+    """:func:`estimate_tones` for one line in each of many blocks at once.
+
+    Row ``i`` of ``x`` (blocks of equal length N) is searched within
+    ``centers_hz[i] +/- span_hz``; every step is the same as :func:`estimate_tones`'s
+    (coarse padded FFT peak, parabolic interpolation, Newton steps with the same
+    step-halving and stopping rules, the same noise medians and detection threshold),
+    vectorised over the rows.
+
+    Returns
+    -------
+    dict of ndarray
+        ``frequency_hz``, ``sigma_hz``, ``amplitude``, ``phase_rad``, ``snr``,
+        ``noise_power`` (one value per row), ``detected`` (bool) and ``n_samples`` (int);
+        and what the result depends on the centre through: ``region_cols`` (a window of
+        padded-FFT bins around the centre) with ``region_inside`` (those searched) and ``tried_lo_hz`` / ``tried_hi_hz`` (the range
+        of frequencies the Newton steps asked for, before clamping to the search band).
+
+    References
+    ----------
+    .. [1] D. C. Rife and R. R. Boorstyn, IEEE Trans. Inf. Theory IT-20(5):591-598, 1974.
+    """
+    fs = float(sample_rate_hz)
+    data = np.asarray(x, dtype=np.complex128)
+    if data.ndim != 2 or data.shape[1] < 8:
+        raise ValueError("x must be 2-D with blocks of >= 8 samples")
+    rows, n = data.shape
+    cen = np.asarray(centers_hz, dtype=np.float64).reshape(rows)
+    span = float(span_hz)
+    if not (0 < span and span * 2 < fs):
+        raise ValueError(f"{span_hz=} must be positive and under fs/2")
+    freqs, m, hann, hann_s2, nat_f = _grid(n, pad, fs)
+    if window == "rect":
+        taper = None
+        xw = data
+    elif window == "hann":
+        taper = hann
+        xw = data * taper
+    else:
+        raise ValueError(f"{window=} must be 'rect' or 'hann'")
+    nfft = freqs.size
+    spec = sp_fft.fft(xw, nfft, axis=1)
+    gain = float(n if taper is None else taper.sum())
+    r = np.arange(rows)
+    c = (cen + fs / 2.0) % fs - fs / 2.0
+    # the search region: the exact |wrap(f - c)| <= reach test, evaluated only on a
+    # window of columns around each centre (the grid is uniform: everything else is out)
+    reach = max(span, fs / nfft)
+    half_cols = int(math.ceil(reach * nfft / fs)) + 2
+    cols = (np.rint(c * nfft / fs).astype(np.int64)[:, None] + np.arange(-half_cols, half_cols + 1)[None, :]) % nfft
+    inside = np.abs(_wrap_hz(freqs[cols] - c[:, None], fs)) <= reach
+    g = spec[r[:, None], cols]
+    gpow = g.real**2 + g.imag**2
+    n_region = inside.sum(axis=1)
+    k = cols[r, np.argmax(np.where(inside, gpow, -np.inf), axis=1)]
+    empty = n_region == 0
+    if empty.any():  # no bin within reach: the nearest one
+        k[empty] = cols[empty, np.argmin(np.abs(_wrap_hz(freqs[cols[empty]] - c[empty, None], fs)), axis=1)]
+    n_searched = np.maximum(1, (np.maximum(n_region, 1) * n) // nfft)
+    w_ref = 2 * math.pi * c / fs
+    half = 2 * math.pi * (span + fs / n) / fs
+    lo_w, hi_w = w_ref - half, w_ref + half
+
+    nspec = sp_fft.fft(data * hann, nat_f.size, axis=1)
+    npow = (nspec.real**2 + nspec.imag**2) / (hann_s2 * math.log(2.0))
+    n_nat = nat_f.size
+    band = np.ones(n_nat, dtype=bool) if noise_band_hz is None else \
+        np.abs(_wrap_hz(nat_f - noise_band_hz[0], fs)) <= noise_band_hz[1]
+    keep = np.broadcast_to(band, (rows, n_nat)).copy()
+    # bins within 4 natural bins of the found line are left out (exact test, near columns only)
+    near = (np.rint(freqs[k] * n_nat / fs).astype(np.int64)[:, None] + np.arange(-7, 8)[None, :]) % n_nat
+    keep[r[:, None], near] &= np.abs(_wrap_hz(nat_f[near] - freqs[k][:, None], fs)) > 4.0 * fs / n
+    enough = keep.sum(axis=1) >= 16
+    noise = np.where(enough, _row_median(npow, keep), np.median(npow, axis=1))
+
+    def pw(j: npt.NDArray[np.int64]) -> npt.NDArray[np.float64]:
+        v = spec[r, j % nfft]
+        return np.asarray(np.sqrt(v.real**2 + v.imag**2), dtype=np.float64)
+
+    a, b, c3 = pw(k - 1), pw(k), pw(k + 1)
+    den = a - 2 * b + c3
+    with np.errstate(divide="ignore", invalid="ignore"):
+        delta = np.where(den < 0, 0.5 * (a - c3) / np.where(den < 0, den, -1.0), 0.0)
+    delta = np.clip(delta, -0.5, 0.5)
+    f0 = freqs[k] + delta * fs / nfft
+    f0 = (f0 + fs / 2.0) % fs - fs / 2.0
+    w0 = 2 * math.pi * f0 / fs
+    d = w0 - w_ref
+    w0 = w_ref + (d - 2 * math.pi * np.round(d / (2 * math.pi)))  # math.remainder, vectorised
+
+    # Newton ascent (as _refine, row by row)
+    bin_w = 2.0 * math.pi / n
+    w = w0.copy()
+    tried_lo, tried_hi = w0.copy(), w0.copy()  # every w asked for, before clamping
+    x0, d1, d2 = _derivs_rows(xw, m, w)
+    p = np.abs(x0) ** 2
+    active = np.ones(rows, dtype=bool)
+    for _ in range(iterations):
+        if not active.any():
+            break
+        with np.errstate(divide="ignore", invalid="ignore"):
+            step = np.where(d2 < 0, -d1 / np.where(d2 < 0, d2, -1.0), np.copysign(0.05 * bin_w, d1))
+        step = np.clip(step, -0.5 * bin_w, 0.5 * bin_w)
+        accepted = np.zeros(rows, dtype=bool)
+        pending = active.copy()
+        for _halving in range(6):
+            idx = np.flatnonzero(pending)
+            if idx.size == 0:
+                break
+            want = w[idx] + step[idx]
+            tried_lo[idx] = np.minimum(tried_lo[idx], want)
+            tried_hi[idx] = np.maximum(tried_hi[idx], want)
+            w_new = np.minimum(hi_w[idx], np.maximum(lo_w[idx], want))
+            x0n, d1n, d2n = _derivs_rows(xw[idx], m, w_new)
+            pn = np.abs(x0n) ** 2
+            ok = pn >= p[idx]
+            good = idx[ok]
+            w[good], x0[good], d1[good], d2[good], p[good] = w_new[ok], x0n[ok], d1n[ok], d2n[ok], pn[ok]
+            accepted[good] = True
+            pending[good] = False
+            step[idx[~ok]] *= 0.5
+        active &= accepted & (np.abs(step) >= 1e-9 * bin_w)
+
+    f = (w * fs / (2 * math.pi) + fs / 2.0) % fs - fs / 2.0
+    amp = np.abs(x0) / gain
+    if 2.0 * span * n_nat / fs + 1.0 >= 128:  # else no row can have 128 local bins
+        local = np.abs(_wrap_hz(nat_f[None, :] - cen[:, None], fs)) <= span
+        local &= np.abs(_wrap_hz(nat_f[None, :] - f[:, None], fs)) > 4.0 * fs / n
+        wide = local.sum(axis=1) >= 128
+        if wide.any():
+            noise = np.where(wide, _row_median(npow, local), noise)
+    noise = np.maximum(noise, 1e-300)
+    snr = amp**2 / noise
+    sigma = np.sqrt(6.0 * fs**2 / ((2.0 * math.pi) ** 2 * snr * n * (n * n - 1.0)))
+    sigma = sigma * (1.0 if taper is None else _HANN_LOSS)
+    threshold = np.maximum(20.0, np.log(n_searched) + 12.0)
+    return {
+        "frequency_hz": f,
+        "sigma_hz": sigma,
+        "amplitude": amp,
+        "phase_rad": np.angle(x0),
+        "snr": snr,
+        "noise_power": noise,
+        "detected": n * snr >= threshold,
+        "n_samples": np.full(rows, n),
+        "region_cols": cols,
+        "region_inside": inside,
+        "tried_lo_hz": tried_lo * fs / (2 * math.pi),
+        "tried_hi_hz": tried_hi * fs / (2 * math.pi),
+    }
+
+
+def same_search(
+    result: dict[str, npt.NDArray[Any]],
+    sample_rate_hz: float,
+    n: int,
+    old_hz: npt.NDArray[np.float64],
+    new_hz: npt.NDArray[np.float64],
+    span_hz: float,
+    pad: int = 2,
+) -> npt.NDArray[np.bool_]:
+    """Rows of an :func:`estimate_rows` result that searching around ``new_hz`` instead
+    of ``old_hz`` would leave unchanged: the same searched bins (same column window and
+    the same bins inside it) and no Newton step reaching either search band's edge
+    (then every number computed is the same)."""
+    fs = float(sample_rate_hz)
+    freqs, _, _, _, nat_f = _grid(n, pad, fs)
+    nfft = freqs.size
+    if 2.0 * float(span_hz) * nat_f.size / fs + 1.0 >= 128:  # the local noise depends on the centre
+        return np.zeros(np.asarray(old_hz).size, dtype=bool)
+    reach = max(float(span_hz), fs / nfft)
+    c_old = (np.asarray(old_hz, dtype=np.float64) + fs / 2.0) % fs - fs / 2.0
+    c_new = (np.asarray(new_hz, dtype=np.float64) + fs / 2.0) % fs - fs / 2.0
+    same = np.rint(c_new * nfft / fs) == np.rint(c_old * nfft / fs)  # same column window
+    cols = result["region_cols"]
+    inside_new = np.abs(_wrap_hz(freqs[cols] - c_new[:, None], fs)) <= reach
+    same &= np.all(inside_new == result["region_inside"], axis=1)
+    half = float(span_hz) + fs / n
+    for c in (c_old, c_new):
+        same &= (result["tried_lo_hz"] > c - half) & (result["tried_hi_hz"] < c + half)
+    return np.asarray(same, dtype=bool)
 
 
 def estimate_tone(

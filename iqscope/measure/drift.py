@@ -48,7 +48,7 @@ from scipy.signal import windows
 
 from ..dsp._allan import AllanResult, oadev
 from ..dsp._spectrum import SubbandCapture, subband_decimation
-from ..dsp._tone import LinePeak, ToneEstimate, Window, estimate_tones, find_lines
+from ..dsp._tone import LinePeak, ToneEstimate, Window, estimate_rows, estimate_tones, find_lines, same_search
 from ..dsp._types import Spectrum
 from ..errors import MeasurementError, UsageError
 from ..io._recording import Recording
@@ -618,6 +618,22 @@ class _Polyphase:
             out += m[j : k - q + 1 + j, j]
         return out
 
+    def rows(self, x: npt.NDArray[np.complex64]) -> npt.NDArray[np.complex64]:
+        """:meth:`__call__` on each row of ``x`` (rows of equal length), as ``D`` FFT
+        convolutions of the polyphase components (no tall, skinny matrix product: BLAS
+        threads handle those badly on a busy machine). Equal to the per-row result to
+        float32 rounding."""
+        d, q = self.matrix.shape
+        n_rows = x.shape[0]
+        k = x.shape[1] // d
+        if k <= q:
+            return np.zeros((n_rows, 0), np.complex64)
+        xs = np.ascontiguousarray(x[:, : k * d], dtype=np.complex64).reshape(n_rows, k, d)
+        out = np.zeros((n_rows, k - q + 1), np.complex64)
+        for p in range(d):
+            out += signal.fftconvolve(xs[:, :, p], self.matrix[p, ::-1][None, :], mode="valid", axes=1)
+        return out
+
 
 class _Channel:
     """One followed line's own narrow channel: two decimating complex band-pass stages.
@@ -735,6 +751,15 @@ class _Channel:
             y = self._stage1(y)
         if self._stage2 is not None:
             y = self._stage2(y)
+        return y
+
+    def output_rows(self, blocks: npt.NDArray[np.complex64]) -> npt.NDArray[np.complex64]:
+        """:meth:`output` on each row of ``blocks``."""
+        y = blocks
+        if self._stage1 is not None:
+            y = self._stage1.rows(y)
+        if self._stage2 is not None:
+            y = self._stage2.rows(y)
         return y
 
     def response(self, f_hz: float) -> float:
@@ -1011,6 +1036,130 @@ class _BandTracker(LineTracker):
         return est
 
 
+    def process_epoch(self, streams: Sequence[npt.NDArray[np.complex64]], b0: int, b1: int) -> int:
+        """Estimate blocks ``b0 .. b1-1`` of every stream in one batch (``b0 >= 1``);
+        returns how many were accepted (0: the search centres did not settle)."""
+        bn = self.block_n
+        d = self._pass_decim
+        rows = b1 - b0
+        n_ch = len(self._channels)
+        ys = []
+        for i, ch in enumerate(self._channels):
+            h = min(ch.history_samples, bn)
+            seg = streams[i][b0 * bn - h : b1 * bn]
+            ext = np.lib.stride_tricks.sliding_window_view(seg, h + bn)[::bn]
+            ys.append(ch.output_rows(ext))
+        start = list(self._centres) + ([self._stable_centre] if self._stable_centre is not None else [])
+        used = np.tile(np.asarray(start, dtype=np.float64), (rows, 1))  # search centre of each row
+        res: list[dict[str, Any]] = [{} for _ in range(n_ch)]
+        todo = np.ones(rows, dtype=bool)
+        n_lines = len(self._centres)
+        last = rows - 1
+        for _round in range(4):
+            idx = np.flatnonzero(todo)
+            for i, ch in enumerate(self._channels):
+                off = self._offsets[i]
+                cen = np.asarray([ch.to_channel(float(c) - off) for c in used[idx, i]])
+                r = estimate_rows(ys[i][idx], ch.rate_hz, cen, self.span_hz, window=self.window,
+                                  noise_band_hz=(ch.to_channel(ch.mix_hz), ch.half_band_hz))
+                r["f_loc"] = np.asarray([ch.from_channel(float(f)) for f in r["frequency_hz"]])
+                r["centre"] = cen
+                if not res[i]:
+                    res[i] = r
+                else:
+                    for key, v in r.items():
+                        res[i][key][idx] = v
+            # replay the sequential rules over the estimates
+            cur = np.asarray(start, dtype=np.float64)
+            need = used.copy()
+            last = rows - 1
+            for j in range(rows):
+                need[j] = cur
+                det = [bool(res[i]["detected"][j]) for i in range(n_ch)]
+                if all(det[:n_lines]):
+                    cur[:n_lines] = [res[i]["f_loc"][j] + self._offsets[i] for i in range(n_lines)]
+                if n_ch > n_lines and det[n_lines]:
+                    cur[n_lines] = res[n_lines]["f_loc"][j] + self._offsets[n_lines]
+                if any(det[i] and abs(res[i]["f_loc"][j] - self._channels[i].mix_hz) > self._channels[i].span_hz
+                       for i in range(n_ch)):
+                    last = j  # a channel re-centres after this block
+                    break
+            todo = np.zeros(rows, dtype=bool)
+            todo[: last + 1] = np.any(need[: last + 1] != used[: last + 1], axis=1)
+            idx = np.flatnonzero(todo)
+            if idx.size:
+                # a different search centre that changes nothing needs no new estimate
+                unchanged = np.ones(idx.size, dtype=bool)
+                for i, ch in enumerate(self._channels):
+                    off = self._offsets[i]
+                    sub = {key: v[idx] for key, v in res[i].items()}
+                    new_c = np.asarray([ch.to_channel(float(c) - off) for c in need[idx, i]])
+                    unchanged &= same_search(sub, ch.rate_hz, ys[i].shape[1], sub["centre"], new_c, self.span_hz)
+                todo[idx[unchanged]] = False
+            used[: last + 1] = need[: last + 1]
+            if not todo.any():
+                break
+        else:
+            return 0
+        for j in range(last + 1):
+            ests = []
+            for i, ch in enumerate(self._channels):
+                r = res[i]
+                f_loc = float(r["f_loc"][j])
+                amp = float(r["amplitude"][j]) / ch.response(f_loc)
+                noise = float(r["noise_power"][j]) * ch.decim * d
+                ests.append(ToneEstimate(
+                    frequency_hz=f_loc + self._offsets[i], sigma_hz=float(r["sigma_hz"][j]), amplitude=amp,
+                    phase_rad=float(r["phase_rad"][j]), snr=amp * amp / noise, noise_power=noise,
+                    n_samples=bn * d, detected=bool(r["detected"][j])))
+            line_ests = tuple(ests[:n_lines])
+            stable = ests[n_lines] if n_ch > n_lines else None
+            if all(e.detected for e in line_ests):
+                self._centres = [e.frequency_hz for e in line_ests]
+            if stable is not None and stable.detected:
+                self._stable_centre = stable.frequency_hz
+            k = len(self._blocks)
+            self._blocks.append(BlockEstimate(k, (k + 0.5) * self.block_s - self.delay_s, line_ests, stable, None))
+        for i, ch in enumerate(self._channels):
+            if res[i]["detected"][last]:
+                ch.follow(float(res[i]["f_loc"][last]))
+                self._check(ch, self._flat_hz[i])
+            if ch.history_samples:
+                blk = streams[i][(b0 + last) * bn : (b0 + last + 1) * bn]
+                self._histories[i] = blk[max(0, bn - ch.history_samples):].copy()
+        return last + 1
+
+#: Blocks estimated together by the captured-band tracker (one batch of array operations).
+_EPOCH_BLOCKS = 128
+
+
+def _run_bands(tracker: _BandTracker, streams: Sequence[npt.NDArray[np.complex64]], n_blocks: int,
+               progress: ProgressFn | None) -> None:
+    """Drive a :class:`_BandTracker` over whole streams, many blocks per batch.
+
+    The first block (no filter history) goes through :meth:`_BandTracker.process_blocks`;
+    then blocks are estimated in epochs of up to :data:`_EPOCH_BLOCKS` with
+    :func:`~iqscope.dsp._tone.estimate_rows`. The sequential rules still hold exactly:
+    each block is searched around where its line was last seen (found by replaying the
+    rules over the epoch's estimates and re-estimating the blocks whose search would
+    differ, until nothing changes), and an epoch ends at the block after which a channel
+    re-centres. An epoch that does not settle in four rounds is done block by block.
+    """
+    bn = tracker.block_n
+    d = tracker._pass_decim
+    tracker.process_blocks([s[:bn] for s in streams])
+    b = 1
+    while b < n_blocks:
+        e = min(n_blocks, b + _EPOCH_BLOCKS)
+        got = tracker.process_epoch(streams, b, e)
+        if got == 0:  # did not settle: block by block
+            tracker.process_blocks([s[b * bn : (b + 1) * bn] for s in streams])
+            got = 1
+        b += got
+        if progress is not None:
+            progress(b * bn * d, n_blocks * bn * d)
+
+
 def track_bands(
     bands: Sequence[SubbandCapture],
     plan: LinePlan,
@@ -1053,10 +1202,7 @@ def track_bands(
         return None
     d = chosen[0].decimation
     try:
-        for k in range(n_blocks):
-            tracker.process_blocks([s[k * bn : (k + 1) * bn] for s in streams])
-            if progress is not None and (k % 64 == 63 or k == n_blocks - 1):
-                progress((k + 1) * bn * d, n_blocks * bn * d)
+        _run_bands(tracker, streams, n_blocks, progress)
     except _LeftBand:
         return None
     track = tracker.track()
