@@ -202,6 +202,14 @@ def _directory(d: Path) -> Path:
     return d / "folder.sigmf-meta"
 
 
+def _fifo(d: Path) -> Path:
+    """A named pipe where a recording should be: refused without opening (which would block)."""
+    if not hasattr(os, "mkfifo"):
+        pytest.skip("no named pipes on this platform")
+    os.mkfifo(d / "pipe.cs16")
+    return d / "pipe.cs16"
+
+
 def _unreadable(d: Path) -> Path:
     p = write_wav(d / "locked.wav", _tone(), FS)
     p.chmod(0)
@@ -231,6 +239,7 @@ CASES: dict[str, tuple[Callable[[Path], Path], bool, str]] = {
     "hostile-dataset-path": (_hostile_dataset_path, False, "refusing"),
     "symlink-outside": (_symlink_outside, False, "outside"),
     "directory": (_directory, False, ""),
+    "named-pipe": (_fifo, False, "regular file"),
     "unreadable": (_unreadable, False, "permission"),
 }
 
