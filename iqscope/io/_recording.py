@@ -232,10 +232,11 @@ class Recording:
             v = np.ascontiguousarray(out).view(np.float32)
             # NaN propagates through max/min and fails the comparison: two cheap
             # reductions in the common case (faster than isfinite)
+            bad: npt.NDArray[np.bool_]
             if float(v.max()) <= MAX_FLOAT_COMPONENT and float(v.min()) >= -MAX_FLOAT_COMPONENT:
                 bad = np.zeros(0, bool)
             else:
-                bad = ~(np.abs(v) <= MAX_FLOAT_COMPONENT).reshape(-1, 2).all(axis=1)
+                bad = np.asarray(~(np.abs(v) <= MAX_FLOAT_COMPONENT).reshape(-1, 2).all(axis=1))
             if bad.any():
                 # count each bad sample once on a front-to-back pass (overlaps not re-counted)
                 lo = max(start, self._nonfinite_until) - start
