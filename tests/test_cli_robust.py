@@ -408,7 +408,7 @@ def _provider_keys(rec_path: Path, request: Any) -> list[tuple[str, dict[str, st
         base = set(analyse(rec, request, providers=[]).measurements)
         for p in PROVIDERS:
             an = analyse(rec, request, providers=[p])
-            out.append((p.__name__, {k: m.unit for k, m in an.measurements.items() if k not in base}))
+            out.append((getattr(p, "__name__", ""), {k: m.unit for k, m in an.measurements.items() if k not in base}))
     return out
 
 
@@ -434,7 +434,7 @@ def two_tone(tmp_path_factory: pytest.TempPathFactory) -> tuple[Path, list[tuple
 def _provider_index(name: str) -> int:
     from iqscope.measure.pipeline import PROVIDERS
 
-    return [p.__name__ for p in PROVIDERS].index(name)
+    return [getattr(p, "__name__", "") for p in PROVIDERS].index(name)
 
 
 def _replace_provider(monkeypatch: pytest.MonkeyPatch, name: str, stand_in: Any) -> None:
@@ -449,7 +449,7 @@ def _replace_provider(monkeypatch: pytest.MonkeyPatch, name: str, stand_in: Any)
 def _provider_names() -> list[str]:
     from iqscope.measure.pipeline import PROVIDERS
 
-    return [p.__name__ for p in PROVIDERS]
+    return [getattr(p, "__name__", "") for p in PROVIDERS]
 
 
 @pytest.mark.parametrize("name", _provider_names())
