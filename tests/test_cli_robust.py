@@ -809,3 +809,29 @@ def test_drift_huge_block(tmp_path: Path, capsys: pytest.CaptureFixture[str]) ->
     meta = write_sigmf(tmp_path / "fund", _tone(8000), FS, center_frequency_hz=F_FUND)
     status, _out, err = _run(capsys, ["drift", str(meta), "--json", "--block=1e308"])
     assert status in (0, 4, 5) and "Traceback" not in err
+
+
+@pytest.mark.parametrize("cmd", list(USABLE_STATUS))
+@pytest.mark.parametrize("case", ["hostile-dataset-path", "symlink-outside"])
+def test_outside_files_never_opened(
+    tmp_path: Path, capsys: pytest.CaptureFixture[str], monkeypatch: pytest.MonkeyPatch, case: str, cmd: str
+) -> None:
+    """Issue 6 acceptance: the file a hostile ``core:dataset`` (or an outside symlink)
+    points at is refused by every command without being opened."""
+    target = CASES[case][0](tmp_path)
+    argv = _argv(cmd, target, tmp_path)
+    outside = {os.path.realpath(tmp_path / "secret.bin"), os.path.realpath(tmp_path / "elsewhere.bin")}
+    opened: list[str] = []
+    real_open, real_io_open, real_os_open = builtins.open, io.open, os.open
+
+    def note(file: Any) -> None:
+        if isinstance(file, (str, bytes, os.PathLike)):
+            opened.append(os.path.realpath(os.fsdecode(file)))
+
+    monkeypatch.setattr(builtins, "open", lambda f, *a, **k: (note(f), real_open(f, *a, **k))[1])
+    monkeypatch.setattr(io, "open", lambda f, *a, **k: (note(f), real_io_open(f, *a, **k))[1])
+    monkeypatch.setattr(os, "open", lambda f, *a, **k: (note(f), real_os_open(f, *a, **k))[1])
+    status, _out, err = _run(capsys, argv)
+    monkeypatch.undo()
+    assert status == EXIT_INPUT, err
+    assert not outside & set(opened)
