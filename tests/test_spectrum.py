@@ -113,7 +113,8 @@ def test_empty_and_short_input() -> None:
         SpectrumAccumulator(64, float("nan"))
 
 
-def test_subband_capture_rebuilds_the_band(rng: np.random.Generator) -> None:
+@pytest.mark.parametrize("capacity", [0, 1000, 10_000])  # pieces joined, overflowing, in place
+def test_subband_capture_rebuilds_the_band(rng: np.random.Generator, capacity: int) -> None:
     """A band rebuilt from the pass's FFTs (weighted overlap-add, Crochiere 1980) equals the
     closed-form mix-down of the in-band tone, decimated (here D = 30: 1600 S/s), and a
     strong tone outside the band is rejected by the window's sidelobes (Blackman-Harris:
@@ -130,7 +131,7 @@ def test_subband_capture_rebuilds_the_band(rng: np.random.Generator) -> None:
     d = subband_decimation(nfft, nfft // 2, fs, 1600.0)
     assert d == 30
     acc = SpectrumAccumulator(nfft, fs)
-    band = SubbandCapture(nfft, fs, "blackmanharris", 1234.567, d)
+    band = SubbandCapture(nfft, fs, "blackmanharris", 1234.567, d, capacity=capacity)
     acc.capture(band)
     for i in range(0, n, 100_003):  # cuts independent of the segments
         acc.update(x[i : i + 100_003])

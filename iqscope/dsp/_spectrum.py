@@ -191,6 +191,9 @@ class SubbandCapture:
         Frequency (Hz offset) to centre the band on; rounded to a bin.
     decimation : int
         ``D``: divides ``N/2`` (see :func:`subband_decimation`).
+    capacity : int
+        Output samples to reserve at once (e.g. the recording's length / ``D``): the
+        band is then written in place instead of joined from pieces at the end.
 
     References
     ----------
@@ -200,7 +203,8 @@ class SubbandCapture:
        analysis and synthesis", Proc. IEEE 65(11):1558-1564, 1977 (from memory).
     """
 
-    def __init__(self, nfft: int, sample_rate_hz: float, window: str, centre_hz: float, decimation: int) -> None:
+    def __init__(self, nfft: int, sample_rate_hz: float, window: str, centre_hz: float, decimation: int,
+                 capacity: int = 0) -> None:
         n, d = int(nfft), int(decimation)
         if n % 2 or d < 1 or (n // 2) % d:
             raise ValueError(f"decimation {d} must divide nfft/2 = {n / 2:g}")
@@ -221,13 +225,23 @@ class SubbandCapture:
         self._inv_c = (1.0 / (d * c)).astype(np.float32)[:half]
         self._prev: npt.NDArray[np.complex64] | None = None
         self._parts: list[npt.NDArray[np.complex64]] = []
+        self._store = np.empty(max(0, int(capacity)), np.complex64)
+        self._filled = 0
         self.start_sample = n // 2
         """Pass sample at which the output starts."""
 
     @property
     def n_samples(self) -> int:
         """Output samples so far."""
-        return sum(p.size for p in self._parts)
+        return self._filled + sum(p.size for p in self._parts)
+
+    def _emit(self, out: npt.NDArray[np.complex64]) -> None:
+        flat = out.ravel()
+        if not self._parts and self._filled + flat.size <= self._store.size:
+            self._store[self._filled : self._filled + flat.size] = flat
+            self._filled += flat.size
+        else:
+            self._parts.append(flat)
 
     def add(self, bins: npt.NDArray[np.complex64], first_segment: int) -> None:
         """Add the band bins (rows: consecutive segments from ``first_segment``)."""
@@ -246,19 +260,22 @@ class SubbandCapture:
             out[0] += self._prev
             out[1:] += h2[:-1]
             out *= self._inv_c
-            self._parts.append(out.ravel())
+            self._emit(out)
         elif b > 1:
             out = out[1:]
             out += h2[:-1]
             out *= self._inv_c
-            self._parts.append(out.ravel())
+            self._emit(out)
         self._prev = h2[-1].copy()
 
     def samples(self) -> npt.NDArray[np.complex64]:
         """The band so far, complex64 at ``sample_rate_hz`` (see the class notes)."""
-        if len(self._parts) > 1:
-            self._parts = [np.concatenate(self._parts)]
-        return self._parts[0] if self._parts else np.zeros(0, np.complex64)
+        head = self._store[: self._filled]
+        if not self._parts:
+            return head
+        self._parts = [np.concatenate([head, *self._parts])]
+        self._store, self._filled = np.empty(0, np.complex64), 0
+        return self._parts[0]
 
 
 class SpectrumAccumulator:

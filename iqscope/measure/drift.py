@@ -1260,7 +1260,7 @@ def plan_capture(
             break
         if any(abs(f - b.centre_hz) <= 0.25 * b.sample_rate_hz for b in bands):
             continue
-        bands.append(SubbandCapture(nfft, fs, window, f, d))
+        bands.append(SubbandCapture(nfft, fs, window, f, d, capacity=recording.n_samples // d + nfft))
     return (spec, noise), bands
 
 
