@@ -1925,6 +1925,11 @@ def analyse_drift(
         track = track_bands(bands, plan, block_s=block_s, span_hz=span_hz, progress=progress,
                             stable_line_hz=setup.stable_search_hz, stable_is_absolute=setup.stable_is_absolute,
                             center_frequency_hz=recording.center_frequency_hz)
+        if track is not None and track.n_blocks < MIN_BLOCKS:
+            # The bands start half a segment late and stop at the last whole segment, so a
+            # short recording can lose the block that made it trackable: read it again
+            # (cheap at that length) rather than report nothing.
+            track = None
     if track is None:
         track = track_frequency(
             recording, plan, block_s=block_s, span_hz=span_hz, progress=progress,
