@@ -288,16 +288,11 @@ def test_grade_refuses_an_absurdly_fine_resolution() -> None:
     assert exc.value.code == 4
 
 
-@pytest.mark.xfail(
-    reason="measure/pipeline.py plan_pass: int(math.ceil(fs / resolution)) before the 2^22 clamp "
-    "overflows (OverflowError) for a tiny resolution_hz; the CLI now refuses < 1e-6 Hz, "
-    "library callers are not protected",
-    strict=False,
-)
 @pytest.mark.parametrize("resolution", [1e-300, 5e-324])
 def test_plan_pass_tiny_resolution(resolution: float) -> None:
-    """plan_pass(8000.0, 2048, 1e-300) -> OverflowError: Python int too large to convert to
-    C ssize_t (5e-324: cannot convert float infinity to integer)."""
+    """plan_pass(8000.0, 2048, 1e-300) once ended in OverflowError (Python int too large to
+    convert to C ssize_t; 5e-324: cannot convert float infinity to integer): the bin count
+    is now clamped to 2^22 before it becomes an integer."""
     from iqscope.measure import plan_pass
 
     plan = plan_pass(8000.0, 2048, resolution)

@@ -181,7 +181,10 @@ def plan_pass(sample_rate_hz: float, n_samples: int, resolution_hz: float | None
     if resolution_hz is not None and not (math.isfinite(resolution_hz) and resolution_hz > 0):
         raise ValueError(f"{resolution_hz=} must be a positive number of Hz")
     target = DEFAULT_BIN_HZ if resolution_hz is None else float(resolution_hz)
-    nfft = int(sp_fft.next_fast_len(max(1, int(math.ceil(fs / target)))))
+    # Clamp the bin count as a float first: fs / 1e-300 Hz is no integer a C size holds.
+    ratio = fs / target
+    bins = 2 * MAX_NFFT if not (math.isfinite(ratio) and ratio <= 2 * MAX_NFFT) else max(1, math.ceil(ratio))
+    nfft = int(sp_fft.next_fast_len(bins))
     if nfft < MIN_NFFT:
         warnings.append(f"--resolution {target:g} Hz is coarser than fs/{MIN_NFFT}: using {fs / MIN_NFFT:.3g} Hz")
         nfft = MIN_NFFT
