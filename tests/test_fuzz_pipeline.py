@@ -236,15 +236,12 @@ def test_arbitrary_options_through_grade(mode: str, options: dict[str, str]) -> 
 # --------------------------------------------------------------------------------------
 # Known faults in files this suite may not change (xfail, exact reproductions)
 # --------------------------------------------------------------------------------------
-@pytest.mark.xfail(
-    reason="measure/bandwidth.py x_db_bandwidth: above.min() on an empty array (ValueError) "
-    "when --resolution makes the FFT as long as a 200-sample recording with two zeroed samples",
-    strict=False,
-)
 def test_bandwidth_provider_on_a_gapped_constant() -> None:
     """analyse(ArrayRecording(y, 48000.0), AnalysisRequest(mode="dsb", resolution_hz=0.001))
-    with y = ones(200), y[[70, 153]] = 0: bandwidth_figures raises, so occupied_bandwidth_hz
-    and bandwidth_26db_hz are missing (found by test_pipeline_and_grade_never_crash)."""
+    with y = ones(200), y[[70, 153]] = 0: bandwidth_figures once raised (x_db_bandwidth took
+    the min of an empty array when the spectrum's peak was under 3 bin-sigmas), so
+    occupied_bandwidth_hz and bandwidth_26db_hz were missing (found by
+    test_pipeline_and_grade_never_crash)."""
     y = np.ones(200, np.complex64)
     y[[70, 153]] = 0
     an = analyse(ArrayRecording(y, 48000.0), AnalysisRequest(mode="dsb", resolution_hz=0.001))

@@ -71,6 +71,26 @@ def test_obw_function_on_exact_spectrum() -> None:
     assert lo == pytest.approx(-505 + 0.005 * width, abs=1e-6)
 
 
+def test_x_db_bandwidth_peak_below_detection_is_nan() -> None:
+    """A peak that is not 3 bin-sigmas above the floor places no x-dB edge (it once raised
+    ValueError on an empty array). With K = 1 average a bin's sigma equals the floor
+    (chi-square with 2 degrees of freedom: std = mean), so an excess of 2x the floor is
+    below 3 sigma and 4x the floor is above it (exact arithmetic, no tolerance needed)."""
+    from iqscope.dsp import AveragedSpectrum
+    from iqscope.measure.bandwidth import x_db_bandwidth
+
+    fs, nfft = 48_000.0, 4800
+    f = np.fft.fftshift(np.fft.fftfreq(nfft, 1 / fs))
+    inside = np.abs(f - 1000) <= 1500
+    for excess, finite in ((2e-6, False), (4e-6, True)):
+        psd = 1e-6 + np.where(inside, excess, 0.0)
+        spec = AveragedSpectrum(f, psd, 10.0, 20.0, "blackmanharris", 1, fs, 0.0, 1.0, nfft)
+        w, lo, hi, sig, limited = x_db_bandwidth(spec, 1e-6, -2000, 4000)
+        assert bool(np.isfinite(w)) is finite
+        if finite:  # the -26 dB level is under 3 sigma: where the band meets the noise
+            assert limited and w == pytest.approx(3000.0, abs=2 * 10.0)
+
+
 def test_no_signal_gives_null_with_note(rng: np.random.Generator) -> None:
     n = 1 << 15
     x = np.sqrt(1e-6 / 2) * (rng.standard_normal(n) + 1j * rng.standard_normal(n))

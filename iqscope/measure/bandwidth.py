@@ -122,6 +122,7 @@ def x_db_bandwidth(
     (width_hz, lower_hz, upper_hz, sigma_hz, noise_limited)
         ``noise_limited`` when the level x dB below the peak is not 3 bin-sigmas above
         the floor; the width is then where the spectrum meets the noise, a lower bound.
+        NaNs when the band is empty or its peak is not 3 bin-sigmas above the floor.
     """
     f = spectrum.freqs_hz
     df = spectrum.bin_hz
@@ -143,6 +144,9 @@ def x_db_bandwidth(
     limited = level < 3.0 * bin_sigma
     if limited:
         level = 3.0 * bin_sigma
+    if not peak >= level:
+        # The peak itself is not 3 bin-sigmas above the floor: no edge can be placed.
+        return nan, nan, nan, nan, False
     above = idx[exc[idx] >= level]
     i_lo, i_hi = int(above.min()), int(above.max())
 
