@@ -724,13 +724,10 @@ def test_harmonics_unknown_centre_names_a_way_that_exists(tmp_path: Path, capsys
         "steady",  # a constant (a line at DC) 0.5 s long: "the recording (0.5 s) is too short ..."
     ],
 )
-@pytest.mark.xfail(
-    reason="measure/drift.py raises MeasurementError without the recording's path, so "
-    "'iqscope drift FILE' prints one line that does not name the file (errors.py: the "
-    "line names the file)",
-    strict=False,
-)
 def test_drift_error_names_the_file(tmp_path: Path, capsys: pytest.CaptureFixture[str], kind: str) -> None:
+    """measure/drift.py once raised these without the recording's path, so the one error
+    line did not name the file; nothing to follow stays exit 5 (docs/robustness.md: a
+    measurement impossible)."""
     x = np.zeros(N, np.complex64) if kind == "silent" else np.full(N, 0.3 + 0.1j, np.complex64)
     meta = write_sigmf(tmp_path / f"{kind}-rec", x, FS, center_frequency_hz=F_FUND)
     status, out, err = _run(capsys, ["drift", str(meta)])
@@ -787,28 +784,23 @@ def test_calibrate_refuses_absurd_levels(tmp_path: Path, capsys: pytest.CaptureF
     assert not (tmp_path / "c.json").exists()
 
 
-@pytest.mark.xfail(
-    reason="measure/drift.py (line ~1470): IndexError 'deque index out of range' for a "
-    "window of 5e-324 s (cli/_drift.py positive_seconds accepts any positive float)",
-    strict=False,
-)
 def test_drift_tiny_window(tmp_path: Path, capsys: pytest.CaptureFixture[str]) -> None:
-    """iqscope drift fund.sigmf-meta --window=5e-324 (1 s carrier at 1 kHz, 8 kS/s)."""
+    """iqscope drift fund.sigmf-meta --window=5e-324 (1 s carrier at 1 kHz, 8 kS/s) once
+    ended in an IndexError traceback; a window shorter than two blocks is now a usage error."""
     meta = write_sigmf(tmp_path / "fund", _tone(8000), FS, center_frequency_hz=F_FUND)
     status, _out, err = _run(capsys, ["drift", str(meta), "--json", "--window=5e-324"])
     assert status in (0, 4, 5) and "Traceback" not in err
+    assert status == 4 and "--window" in err and "fund" in err and len(err.strip().splitlines()) == 1
 
 
-@pytest.mark.xfail(
-    reason="measure/drift.py (line ~827): OverflowError 'cannot convert float infinity to "
-    "integer' for --block 1e308 (cli/_drift.py positive_seconds accepts it)",
-    strict=False,
-)
-def test_drift_huge_block(tmp_path: Path, capsys: pytest.CaptureFixture[str]) -> None:
-    """iqscope drift fund.sigmf-meta --block=1e308."""
+@pytest.mark.parametrize("block", ["1e308", "1e-9"])
+def test_drift_huge_block(tmp_path: Path, capsys: pytest.CaptureFixture[str], block: str) -> None:
+    """iqscope drift fund.sigmf-meta --block=1e308 once ended in an OverflowError
+    traceback; a block longer than the recording or under 64 samples is a usage error."""
     meta = write_sigmf(tmp_path / "fund", _tone(8000), FS, center_frequency_hz=F_FUND)
-    status, _out, err = _run(capsys, ["drift", str(meta), "--json", "--block=1e308"])
+    status, _out, err = _run(capsys, ["drift", str(meta), "--json", f"--block={block}"])
     assert status in (0, 4, 5) and "Traceback" not in err
+    assert status == 4 and "--block" in err and "fund" in err and len(err.strip().splitlines()) == 1
 
 
 @pytest.mark.parametrize("cmd", list(USABLE_STATUS))

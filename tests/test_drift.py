@@ -412,6 +412,68 @@ class TestEdgeCases:
         assert res.warnings
 
 
+class TestOptionBounds:
+    """Options the tracker cannot use are usage errors naming the file, checked before
+    anything is tracked; a library caller's odd window leaves one figure null."""
+
+    def test_block_and_window_checks(self) -> None:
+        from iqscope.measure.drift import MIN_BLOCK_SAMPLES, check_block_s, check_window_s
+
+        check_block_s(MIN_BLOCK_SAMPLES / 8000.0, 8000.0, 1.0)  # exactly 64 samples: fine
+        for bad in (float("inf"), float("nan"), 0.0, -1.0, 1e-9, 1e308):
+            with pytest.raises(UsageError, match="--block"):
+                check_block_s(bad, 8000.0, 1.0)
+        check_block_s(1e6, 8000.0)  # a growing file (watch): no length bound
+        check_window_s(0.25, 0.125)
+        for bad_w in (5e-324, 0.2, float("inf"), 0.0):
+            with pytest.raises(UsageError, match="--window"):
+                check_window_s(bad_w, 0.125)
+
+    def test_errors_name_the_file(self, tmp_path) -> None:  # type: ignore[no-untyped-def]
+        from iqscope.io import open_recording, write_sigmf
+
+        fs = 4000.0
+        meta = write_sigmf(tmp_path / "tone", synth(np.full(40_000, 100.0), fs), fs)
+        quiet = write_sigmf(tmp_path / "quiet", np.zeros(40_000, np.complex64), fs)
+        with open_recording(meta) as rec:
+            with pytest.raises(UsageError) as exc:
+                analyse_drift(rec, block_s=1e308)
+            assert exc.value.path is not None and exc.value.path.name == "tone.sigmf-meta"
+            with pytest.raises(UsageError, match="--window") as exc:
+                analyse_drift(rec, window_s=5e-324)
+            assert "tone.sigmf-meta" in str(exc.value)
+        with open_recording(quiet) as rec:
+            with pytest.raises(MeasurementError, match="nothing to track") as exc2:
+                analyse_drift(rec)
+            assert exc2.value.path is not None and exc2.value.path.name == "quiet.sigmf-meta"
+
+    def test_short_window_in_grade_nulls_one_figure(self) -> None:
+        """grade's drift provider keeps the other figures; the worst-window one is null."""
+        fs = 4000.0
+        t = np.arange(int(fs * 20)) / fs
+        rec = ArrayRecording(synth(612.0 + 1.7 / 60 * t, fs), fs)
+        out = drift_figures(_ctx(rec, "cw", 612.0, drift_window_s=5e-324))
+        m = out.measurements["drift_worst_window_hz"]
+        assert m.value is None and "fewer than two" in m.note
+        assert out.measurements["drift_hz_per_min"].value is not None
+
+    def test_window_excursion_never_indexes_past_its_queue(self) -> None:
+        """A window shorter than the block spacing holds one block at a time: 0 Hz."""
+        from iqscope.measure.drift import _window_excursion
+
+        t = np.arange(10) * 0.125
+        f = np.sin(t)
+        for w in (-0.125, 0.0, 5e-324):
+            assert _window_excursion(t, f, w)[0] == 0.0
+        # a window spanning every point gives the whole peak-to-peak (exact)
+        assert _window_excursion(t, f, 10.0)[0] == pytest.approx(float(f.max() - f.min()), abs=0)
+
+    def test_tracker_refuses_an_infinite_block(self) -> None:
+        plan = LinePlan((100.0,), 0.0, "line", "a line", 100.0, math.inf, 0.0, ())
+        with pytest.raises(ValueError, match="block_s"):
+            LineTracker(8000.0, plan, block_s=1e308)
+
+
 def _ctx(rec: ArrayRecording, mode: str, carrier: float | None, **req: object) -> AnalysisContext:
     spec, noise = survey_spectrum(rec)
     return AnalysisContext(

@@ -203,6 +203,23 @@ def test_watch_missing_file_gives_input_error(tmp_path: Path, capsys: pytest.Cap
     assert err.count("\n") == 1 and "never.cf32" in err
 
 
+@pytest.mark.parametrize(("extra", "status", "words"), [
+    (["--window", "5e-324"], 4, "--window"),  # shorter than two blocks: usage error, at once
+    (["--block", "1e-9"], 4, "--block"),  # under 64 samples
+    ([], 5, "nothing to track"),  # silence: no line (a measurement impossible)
+])
+def test_watch_errors_name_the_file(tmp_path: Path, capsys: pytest.CaptureFixture[str], extra: list[str],
+                                    status: int, words: str) -> None:
+    """Each is refused before following, in one line naming the file."""
+    path = tmp_path / "done.cf32"
+    x = np.zeros(8000, np.complex64) if not extra else Writer(path, 1).chunk(0, np.random.default_rng(1))
+    path.write_bytes(np.resize(x, 8000).astype(np.complex64).tobytes())
+    rc = main(["watch", str(path), "--format", "cf32", "--rate", "4000", "--idle", "0.1", "--poll", "0.05",
+               *extra])
+    err = capsys.readouterr().err
+    assert rc == status and err.count("\n") == 1 and "done.cf32" in err and words in err, err
+
+
 def test_watch_panel_renders() -> None:
     status = WatchStatus(
         elapsed_s=75.0, n_blocks=300, n_valid=298, level_dbfs=-10.5, snr_db=25.0, offset_hz=3.25,

@@ -93,8 +93,11 @@ def watch(
     """
     from ..measure.drift import (
         LineTracker,
+        check_block_s,
+        check_window_s,
         choose_block_s,
         drift_measurements,
+        naming_the_file,
         prepare_tracking,
         survey_at_start,
         watch_status,
@@ -125,10 +128,15 @@ def watch(
             on_status(None, "waiting for data")
         sleep(args.poll)
     assert rec is not None
-    spec, noise, _ = survey_at_start(rec)
-    setup = prepare_tracking(rec, spec, noise, mode=args.mode, carrier_hz=args.carrier, nominal_hz=args.carrier,
-                             tone_hz=args.tone, line_hz=args.line, reference_hz=args.reference)
-    block_s = args.block or choose_block_s(setup.plan.snr, rec.sample_rate_hz, 8 * MAX_AUTO_BLOCK_S)
+    with naming_the_file(rec.path):  # the one error line names the file
+        if args.block is not None:
+            check_block_s(args.block, rec.sample_rate_hz)  # the file grows: no length bound
+        check_window_s(args.window)
+        spec, noise, _ = survey_at_start(rec)
+        setup = prepare_tracking(rec, spec, noise, mode=args.mode, carrier_hz=args.carrier, nominal_hz=args.carrier,
+                                 tone_hz=args.tone, line_hz=args.line, reference_hz=args.reference)
+        block_s = args.block or choose_block_s(setup.plan.snr, rec.sample_rate_hz, 8 * MAX_AUTO_BLOCK_S)
+        check_window_s(args.window, block_s)
     tracker = LineTracker(rec.sample_rate_hz, setup.plan, block_s=block_s, span_hz=args.span,
                           stable_hz=setup.stable_search_hz, stable_is_absolute=setup.stable_is_absolute,
                           center_frequency_hz=rec.center_frequency_hz, measure_carrier=True)

@@ -34,8 +34,10 @@ References
 from __future__ import annotations
 
 import math
+import os
 from collections import deque
-from collections.abc import Mapping, Sequence
+from collections.abc import Iterator, Mapping, Sequence
+from contextlib import contextmanager
 from dataclasses import dataclass, field, replace
 from typing import Any
 
@@ -50,7 +52,7 @@ from ..dsp._allan import AllanResult, oadev
 from ..dsp._spectrum import SubbandCapture, subband_decimation
 from ..dsp._tone import LinePeak, ToneEstimate, Window, estimate_rows, estimate_tones, find_lines, same_search
 from ..dsp._types import Spectrum
-from ..errors import MeasurementError, UsageError
+from ..errors import IqscopeError, MeasurementError, UsageError
 from ..io._recording import Recording
 from ._analysis import Trace
 from ._context import AnalysisContext, FigureSet, ProgressFn
@@ -76,6 +78,10 @@ __all__ = [
     "prepare_tracking",
     "drift_figures",
     "resolve_frequency",
+    "check_block_s",
+    "check_window_s",
+    "naming_the_file",
+    "MIN_BLOCK_SAMPLES",
     "DEFAULT_WINDOW_S",
     "NOTE_RELATIVE",
     "NOTE_INCLUDES_RECEIVER",
@@ -105,6 +111,8 @@ MIN_AUTO_BLOCK_S = 1.0
 LINE_CONTRAST_DB = 10.0
 #: Fewest blocks a track must have to give figures.
 MIN_BLOCKS = 8
+#: Shortest block the tracker accepts, samples (the shortest block choose_block_s picks).
+MIN_BLOCK_SAMPLES = 64
 #: Candidate block lengths, s (octaves, so ADEV taus are round numbers).
 _BLOCK_CHOICES = tuple(2.0**k for k in range(-7, 4))  # 1/128 s .. 8 s
 #: ADEV is quoted at the octave tau nearest this, s.
@@ -457,6 +465,49 @@ def choose_block_s(
         )
     ok = [t for t in fits if t >= need]
     return min(ok) if ok else max(fits)
+
+
+def check_block_s(block_s: float, sample_rate_hz: float, duration_s: float | None = None) -> None:
+    """Refuse a ``--block`` the tracker cannot use (:class:`~iqscope.errors.UsageError`).
+
+    A block must be a finite number of seconds holding at least
+    :data:`MIN_BLOCK_SAMPLES` samples and, when the recording's length is known
+    (``duration_s``; not for a growing file), no longer than the recording.
+    """
+    if not (math.isfinite(block_s) and block_s > 0):
+        raise UsageError(f"--block {block_s!r} must be a positive number of seconds")
+    shortest = MIN_BLOCK_SAMPLES / sample_rate_hz
+    if block_s < shortest:
+        raise UsageError(f"--block {block_s:g} s holds fewer than {MIN_BLOCK_SAMPLES} samples at "
+                         f"{sample_rate_hz:g} S/s: use at least {shortest:.3g} s")
+    if duration_s is not None and block_s > duration_s:
+        raise UsageError(f"--block {block_s:g} s is longer than the recording ({duration_s:.3g} s)")
+
+
+def check_window_s(window_s: float, block_s: float | None = None) -> None:
+    """Refuse a ``--window`` the worst-excursion figure cannot use (UsageError).
+
+    The window must be a positive, finite number of seconds and, once the block length
+    is known, hold at least two blocks (a window of one block always shows 0 Hz).
+    """
+    if not (math.isfinite(window_s) and window_s > 0):
+        raise UsageError(f"--window {window_s!r} must be a positive number of seconds")
+    if block_s is not None and window_s < 2.0 * block_s:
+        raise UsageError(f"--window {window_s:g} s is shorter than two {block_s:g}-s blocks: the worst "
+                         f"excursion needs at least {2.0 * block_s:g} s (or a shorter --block)")
+
+
+@contextmanager
+def naming_the_file(path: str | os.PathLike[str] | None) -> Iterator[None]:
+    """Re-raise an :class:`~iqscope.errors.IqscopeError` that names no file as the same
+    error naming ``path``, so that the command line's one error line names the recording.
+    """
+    try:
+        yield
+    except IqscopeError as exc:
+        if exc.path is not None or path is None:
+            raise
+        raise type(exc)(exc.message, path) from exc
 
 
 def default_span_hz(plan: LinePlan, block_s: float) -> float:
@@ -820,8 +871,8 @@ class LineTracker:
         measure_carrier: bool = False,
         decimate: bool = True,
     ) -> None:
-        if not block_s > 0:
-            raise ValueError(f"{block_s=} must be > 0")
+        if not (math.isfinite(block_s * sample_rate_hz) and block_s > 0):
+            raise ValueError(f"{block_s=} must be a positive, finite number of seconds")
         self.sample_rate_hz = float(sample_rate_hz)
         self.plan = plan
         self.block_n = max(8, int(round(block_s * sample_rate_hz)))
@@ -1454,6 +1505,7 @@ def _slope(t: npt.NDArray[np.float64], f: npt.NDArray[np.float64]) -> tuple[floa
 
 def _window_excursion(t: npt.NDArray[np.float64], f: npt.NDArray[np.float64], w: float) -> tuple[float, float]:
     """Largest max - min within any window of length ``w`` seconds, and its start time."""
+    w = max(w, 0.0)  # a window shorter than the spacing holds one point at a time
     best, best_t = 0.0, float(t[0])
     dq_max: deque[int] = deque()
     dq_min: deque[int] = deque()
@@ -1533,7 +1585,7 @@ def drift_measurements(
       ``y = (f - mean f) / f_RF`` at octave taus from the block length, on the longest run
       of usable blocks; value at the octave tau nearest 10 s.
     """
-    if window_s <= 0:
+    if not window_s > 0:
         raise ValueError(f"{window_s=} must be > 0")
     warnings: list[str] = []
     nominal = 0.0 if nominal_offset_hz is None else float(nominal_offset_hz)
@@ -1630,25 +1682,33 @@ def drift_measurements(
 
     # --- worst window ---------------------------------------------------------------
     span_s = float(t[-1] - t[0] + T)
-    if span_s <= window_s:
-        ww, wt = pp, float(t[0] - T / 2)
-        wnote = (f"The recording ({span_s:.0f} s of usable blocks) is not longer than the "
-                 f"{window_s:g}-s window: this is the peak-to-peak of the whole track.")
+    if window_s < 2.0 * T:
+        ms["drift_worst_window_hz"] = Measurement(
+            value=None, unit="Hz",
+            note=(f"not measured: the {window_s:g}-s window holds fewer than two {T:g}-s blocks "
+                  "(a longer --window or a shorter --block)."),
+            details={"window_s": window_s},
+        )
     else:
-        ww, wt = _window_excursion(t, f, window_s - T)
-        wnote = f"Largest max-minus-min frequency within any {window_s:g}-s window."
-    n_win = max(2, int(round(min(window_s, span_s) / T)))
-    wnoise = _noise_pp(n_win, sig_med)
-    w_noise = ww <= 1.5 * wnoise
-    ms["drift_worst_window_hz"] = Measurement(
-        value=ww,
-        unit="Hz",
-        uncertainty=math.sqrt(2.0) * sig_med,
-        limited_by_noise=w_noise,
-        bound="upper" if w_noise else None,
-        note=wnote + (" Within the noise of the estimates." if w_noise else "") + rel_note,
-        details={"window_s": window_s, "window_start_s": wt},
-    )
+        if span_s <= window_s:
+            ww, wt = pp, float(t[0] - T / 2)
+            wnote = (f"The recording ({span_s:.0f} s of usable blocks) is not longer than the "
+                     f"{window_s:g}-s window: this is the peak-to-peak of the whole track.")
+        else:
+            ww, wt = _window_excursion(t, f, window_s - T)
+            wnote = f"Largest max-minus-min frequency within any {window_s:g}-s window."
+        n_win = max(2, int(round(min(window_s, span_s) / T)))
+        wnoise = _noise_pp(n_win, sig_med)
+        w_noise = ww <= 1.5 * wnoise
+        ms["drift_worst_window_hz"] = Measurement(
+            value=ww,
+            unit="Hz",
+            uncertainty=math.sqrt(2.0) * sig_med,
+            limited_by_noise=w_noise,
+            bound="upper" if w_noise else None,
+            note=wnote + (" Within the noise of the estimates." if w_noise else "") + rel_note,
+            details={"window_s": window_s, "window_start_s": wt},
+        )
 
     # --- settling -------------------------------------------------------------------
     key_i = int(np.argmax(track.valid))
@@ -1900,6 +1960,7 @@ def analyse_drift(
     spectrum: tuple[Spectrum, float] | None = None,
     hint_tol_hz: float = 5.0,
     bands: Sequence[SubbandCapture] = (),
+    refuse_short_window: bool = True,
 ) -> DriftResult:
     """Survey, plan, track and figure: what ``iqscope drift`` runs.
 
@@ -1908,11 +1969,54 @@ def analyse_drift(
     ``bands`` are narrow bands captured during the pipeline's pass (:func:`plan_capture`):
     when they hold the planned lines the track comes from them (:func:`track_bands`)
     instead of a second read of the recording.
+
+    The options are checked before anything is read (:func:`check_block_s`,
+    :func:`check_window_s`): a ``block_s`` under :data:`MIN_BLOCK_SAMPLES` samples or
+    longer than the recording, a non-finite span or window, and (with
+    ``refuse_short_window``, as ``iqscope drift`` does) a window shorter than two blocks
+    are :class:`~iqscope.errors.UsageError`; without it that window leaves only
+    ``drift_worst_window_hz`` null, with a note.
+
+    Raises
+    ------
+    UsageError, MeasurementError
+        Naming the recording's file (``error.path``), like every error raised here.
     """
-    if block_s is not None and not (block_s > 0 and math.isfinite(block_s)):
-        raise UsageError(f"--block {block_s!r} must be a positive number of seconds")
+    with naming_the_file(recording.path):
+        return _analyse_drift(
+            recording, mode=mode, carrier_hz=carrier_hz, tone_hz=tone_hz, line_hz=line_hz,
+            reference_hz=reference_hz, nominal_hz=nominal_hz, block_s=block_s, span_hz=span_hz,
+            window_s=window_s, settle_band_hz=settle_band_hz, progress=progress, spectrum=spectrum,
+            hint_tol_hz=hint_tol_hz, bands=bands, refuse_short_window=refuse_short_window,
+        )
+
+
+def _analyse_drift(
+    recording: Recording,
+    *,
+    mode: str | None,
+    carrier_hz: float | None,
+    tone_hz: float | None,
+    line_hz: float | None,
+    reference_hz: float | None,
+    nominal_hz: float | None,
+    block_s: float | None,
+    span_hz: float | None,
+    window_s: float,
+    settle_band_hz: float,
+    progress: ProgressFn | None,
+    spectrum: tuple[Spectrum, float] | None,
+    hint_tol_hz: float,
+    bands: Sequence[SubbandCapture],
+    refuse_short_window: bool,
+) -> DriftResult:
+    if block_s is not None:
+        check_block_s(block_s, recording.sample_rate_hz, recording.duration_s)
     if span_hz is not None and not (span_hz > 0 and math.isfinite(span_hz)):
         raise UsageError(f"--span {span_hz!r} must be a positive number of hertz")
+    check_window_s(window_s)
+    if not (settle_band_hz > 0 and math.isfinite(settle_band_hz)):
+        raise UsageError(f"--settle-band {settle_band_hz!r} must be a positive number of hertz")
     spec, noise = spectrum if spectrum is not None else survey_at_start(recording)[:2]
     setup = prepare_tracking(recording, spec, noise, mode=mode, carrier_hz=carrier_hz, tone_hz=tone_hz,
                              line_hz=line_hz, reference_hz=reference_hz, nominal_hz=nominal_hz,
@@ -1920,6 +2024,8 @@ def analyse_drift(
     plan = setup.plan
     if block_s is None:
         block_s = choose_block_s(plan.snr, recording.sample_rate_hz, recording.duration_s)
+    if refuse_short_window:
+        check_window_s(window_s, block_s)
     track = None
     if bands:
         track = track_bands(bands, plan, block_s=block_s, span_hz=span_hz, progress=progress,
@@ -1978,6 +2084,7 @@ def drift_figures(ctx: AnalysisContext) -> FigureSet:
             hint_tol_hz=50.0,
             spectrum=survey,
             bands=bands,
+            refuse_short_window=False,  # grade: only drift_worst_window_hz is then null
         )
     except (MeasurementError, UsageError) as exc:
         out.warnings.append(f"drift not measured: {exc.message}")
