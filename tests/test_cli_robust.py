@@ -495,27 +495,23 @@ def test_failing_provider_degrades_through_grade(
             assert v["status"] == "warn"
 
 
-@pytest.mark.xfail(
-    reason="pipeline.py: the core providers declare no 'provides', so a provider that "
-    "raises makes its figures vanish from the JSON instead of null-with-a-note "
-    "(DESIGN.md section 4: 'one that applies but failed has value null and a note')",
-    strict=False,
-)
 def test_real_provider_failure_leaves_null_figures(
     two_tone: tuple[Path, list[tuple[str, dict[str, str]]], dict[str, Any]],
     capsys: pytest.CaptureFixture[str],
     monkeypatch: pytest.MonkeyPatch,
 ) -> None:
-    """A fault inside carrier_figures itself (a stand-in with the same name and, like the
-    real provider, no ``provides``)."""
-    from iqscope.measure import pipeline
+    """A fault inside the real carrier_figures (a helper it calls raises), so what counts
+    is the real provider's own ``provides`` declaration: its figures are null with a
+    note, not gone (DESIGN.md section 4: 'one that applies but failed has value null and
+    a note'). The core providers once declared nothing and the figures vanished."""
+    from iqscope.measure import carrier
 
     path, _keys, _baseline = two_tone
 
-    def carrier_figures(ctx: Any) -> Any:
+    def boom(*args: Any, **kwargs: Any) -> Any:
         raise ZeroDivisionError("float division by zero")
 
-    _replace_provider(monkeypatch, "carrier_figures", carrier_figures)
+    monkeypatch.setattr(carrier, "sideband_power", boom)
     status, out, err = _run(capsys, ["grade", str(path), *_GRADE_TWO_TONE])
     assert status in (1, 2) and "Traceback" not in err
     meas = json.loads(out)["measurements"]

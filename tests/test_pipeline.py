@@ -122,6 +122,64 @@ def test_failing_provider_does_not_sink_the_others(rng: np.random.Generator) -> 
     assert an.measurements["carrier_suppression_db"].value is not None
 
 
+def _provider_cases() -> list[tuple[str, np.ndarray, AnalysisRequest, float | None]]:
+    from iqscope.measure.power import Calibration
+
+    rng = np.random.default_rng(11)
+    n = 1 << 16
+    t = np.arange(n) / FS
+    hiss = _noise(rng, n, 1e-9)
+    cw = 0.3 * np.exp(2j * np.pi * 1500.3 * t) + hiss
+    am = 0.3 * np.exp(2j * np.pi * 1500.3 * t) * (1 + 0.5 * np.cos(2 * np.pi * 700 * t)) + hiss
+    ssb = 0.3 * np.exp(2j * np.pi * 2500 * t) + 1e-3 * np.exp(2j * np.pi * 1000 * t) + hiss
+    tt = (0.2 * np.exp(2j * np.pi * 2700 * t) + 0.2 * np.exp(2j * np.pi * 3900 * t)
+          + 1e-3 * np.exp(2j * np.pi * 1500 * t) + 1e-4 * np.exp(2j * np.pi * 5100 * t) + hiss)
+    cal = Calibration(offset_db=10.0, uncertainty_db=0.5, reference_level_dbm=-20.0)
+    return [
+        ("dsb", dsb(rng, n), AnalysisRequest(), 7.1e6),
+        ("cw", cw, AnalysisRequest(mode="cw"), None),
+        ("am+calibration", am, AnalysisRequest(mode="am", options={"calibration": cal}), 7.0e6),
+        ("usb", ssb, AnalysisRequest(mode="usb", carrier_hz=1000.0, tone_hz=1500.0), None),
+        ("lsb", ssb, AnalysisRequest(mode="lsb", carrier_hz=4000.0, tone_hz=1500.0), None),
+        ("two-tone", tt, AnalysisRequest(mode="two-tone", carrier_hz=1500.0), None),
+        ("two-tone, no carrier", tt, AnalysisRequest(mode="two-tone"), None),
+        ("noise", _noise(rng, n, 1e-6), AnalysisRequest(), None),
+        ("empty", np.zeros(0, np.complex64), AnalysisRequest(), None),
+        ("10 samples", hiss[:10] + 0.1, AnalysisRequest(mode="dsb"), None),
+    ]
+
+
+@pytest.mark.parametrize("case", _provider_cases(), ids=lambda c: c[0])
+def test_every_provider_declares_what_it_reports(case) -> None:  # type: ignore[no-untyped-def]
+    """Integrity of the ``provides`` declarations (STYLE.md item 14: a registry with its own
+    test): in each mode each provider of PROVIDERS reports exactly the figures (and units)
+    it declares, so a failing provider leaves exactly those null and none that does not
+    apply (DESIGN.md section 4). The one allowed gap: the drift provider skips (no
+    figures, one warning) when it finds no line to follow."""
+    from iqscope.measure.pipeline import declared_figures
+
+    _label, x, request, centre = case
+    seen: dict[str, tuple[dict[str, str], dict[str, str]]] = {}
+
+    def spy(p):  # type: ignore[no-untyped-def]
+        def run(ctx):  # type: ignore[no-untyped-def]
+            out = p(ctx)
+            seen[p.__name__] = ({k: m.unit for k, m in out.measurements.items()}, declared_figures(p, ctx))
+            return out
+
+        run.__name__ = p.__name__
+        return run
+
+    an = analyse(ArrayRecording(np.asarray(x, np.complex64), FS, center_frequency_hz=centre), request,
+                 providers=[spy(p) for p in PROVIDERS])
+    assert set(seen) == {p.__name__ for p in PROVIDERS}  # none failed
+    for name, (got, declared) in seen.items():
+        if name == "drift_figures" and not got:
+            assert any(w.startswith("drift not measured") for w in an.warnings)
+            continue
+        assert got == declared, name
+
+
 class _Spy(Recording):
     """Counts the largest read, to show the pipeline streams."""
 

@@ -71,3 +71,7 @@ def artefact_figures(ctx: AnalysisContext) -> FigureSet:
                     )
                 )
     return out
+
+
+#: Flags only, no measurement (pipeline ``provides``).
+artefact_figures.provides = {}  # type: ignore[attr-defined]

@@ -215,3 +215,7 @@ def bandwidth_figures(ctx: AnalysisContext) -> FigureSet:
     else:
         out.measurements["bandwidth_26db_hz"] = failed("Hz", "no power above the noise floor")
     return out
+
+
+#: Both bandwidths apply in every mode (pipeline ``provides``).
+bandwidth_figures.provides = {"occupied_bandwidth_hz": "Hz", "bandwidth_26db_hz": "Hz"}  # type: ignore[attr-defined]

@@ -19,6 +19,8 @@ from __future__ import annotations
 
 import math
 
+from collections.abc import Mapping
+
 from ..dsp._lines import BandPower, LinePower
 from ._context import AnalysisContext, FigureSet
 from ._result import Artefact, Measurement, failed
@@ -118,6 +120,20 @@ def carrier_figures(ctx: AnalysisContext) -> FigureSet:
             pep, pep_sigma, car, "peak envelope power (largest |x|^2) over the residual carrier" + dc_note, mode
         )
     return out
+
+
+def _carrier_provides(ctx: AnalysisContext) -> Mapping[str, str]:
+    """The figures :func:`carrier_figures` reports in this context's mode (pipeline ``provides``)."""
+    mode = ctx.signal.mode
+    out: dict[str, str] = {}
+    if mode != "two-tone" or ctx.signal.carrier_offset_hz is not None:
+        out["frequency_offset_hz"] = "Hz"
+    if mode in SUPPRESSED:
+        out.update(carrier_suppression_db="dB", carrier_below_pep_db="dB")
+    return out
+
+
+carrier_figures.provides = _carrier_provides  # type: ignore[attr-defined]
 
 
 def _ratio_figure(num: float, num_sigma: float, car: LinePower, what: str, mode: str) -> Measurement:

@@ -32,6 +32,7 @@ References
 from __future__ import annotations
 
 import math
+from collections.abc import Mapping
 from decimal import ROUND_HALF_UP, Decimal
 from typing import Final, Literal
 
@@ -480,3 +481,12 @@ def _ssb_carrier_from_spectrum(ctx: AnalysisContext) -> tuple[CarrierLevel, str]
     below = 10.0 * math.log10(ratio)
     level = ssb_carrier_level(below)
     return level, f"{below:.1f} dB below PEP ({level})"
+
+
+def _designator_provides(ctx: AnalysisContext) -> Mapping[str, str]:
+    """``necessary_bandwidth_hz`` for an emission class, not for the two-tone test
+    (pipeline ``provides``)."""
+    return {"necessary_bandwidth_hz": "Hz"} if ctx.signal.mode in ("cw", "am", "dsb", "usb", "lsb") else {}
+
+
+designator_figures.provides = _designator_provides  # type: ignore[attr-defined]

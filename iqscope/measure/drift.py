@@ -2097,3 +2097,21 @@ def drift_figures(ctx: AnalysisContext) -> FigureSet:
     out.warnings.extend(result.warnings)
     return out
 
+
+def _drift_provides(ctx: AnalysisContext) -> Mapping[str, str]:
+    """The figures :func:`drift_figures` reports when it follows a line (pipeline
+    ``provides``): none without a signal or without enough samples to look for a line
+    (it then skips, with a warning); ``frequency_error_hz`` only with ``--carrier``,
+    ``allan_deviation`` only with a known capture centre."""
+    if ctx.signal.mode == "none" or ctx.recording.n_samples < 64:
+        return {}
+    out = {"frequency_offset_hz": "Hz", "drift_hz_per_min": "Hz/min", "drift_peak_to_peak_hz": "Hz",
+           "drift_worst_window_hz": "Hz", "warmup_settling_s": "s"}
+    if ctx.request.carrier_hz is not None:
+        out["frequency_error_hz"] = "Hz"
+    if ctx.recording.center_frequency_hz is not None:
+        out["allan_deviation"] = "1"
+    return out
+
+
+drift_figures.provides = _drift_provides  # type: ignore[attr-defined]

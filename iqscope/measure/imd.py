@@ -28,6 +28,7 @@ References
 from __future__ import annotations
 
 import math
+from collections.abc import Mapping
 from dataclasses import dataclass, field
 from typing import Final
 
@@ -514,3 +515,20 @@ def opposite_sideband_of_tones(
 
 def _db(p: float) -> float:
     return 10.0 * math.log10(p) if p > 0 else math.nan
+
+
+def _two_tone_provides(ctx: AnalysisContext) -> Mapping[str, str]:
+    """The figures :func:`two_tone_figures` reports (pipeline ``provides``): none outside
+    ``--mode two-tone``; the opposite sideband only with a known carrier."""
+    if ctx.signal.mode != "two-tone":
+        return {}
+    out = {"tone_balance_db": "dB"}
+    for order in range(3, MAX_ORDER + 1, 2):
+        out[f"imd{order}_dbc"] = "dBc"
+        out[f"imd{order}_db_pep"] = "dB"
+    if ctx.signal.carrier_offset_hz is not None:
+        out["opposite_sideband_suppression_db"] = "dB"
+    return out
+
+
+two_tone_figures.provides = _two_tone_provides  # type: ignore[attr-defined]

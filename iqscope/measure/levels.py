@@ -101,3 +101,11 @@ def level_figures(ctx: AnalysisContext) -> FigureSet:
             details={"noise_dbfs_in_rbw": floor.dbfs_per_hz + 10.0 * math.log10(ctx.spectrum.enbw_hz)},
         )
     return out
+
+
+#: The three level figures apply in every mode (pipeline ``provides``).
+level_figures.provides = {  # type: ignore[attr-defined]
+    "peak_dbfs": "dBFS",
+    "clipped_fraction": "1",
+    "noise_floor_dbfs_per_hz": "dBFS/Hz",
+}

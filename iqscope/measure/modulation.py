@@ -22,6 +22,7 @@ References
 from __future__ import annotations
 
 import math
+from collections.abc import Mapping
 from typing import Final
 
 from ..dsp._envelope import EnvelopeExtremes, envelope_modulation_index
@@ -106,3 +107,11 @@ def modulation_figures(ctx: AnalysisContext) -> FigureSet:
         note += "; the envelope reaches zero: over-modulation"
     out.measurements[name] = Measurement(value=m, unit="1", uncertainty=sig, note=note, details=details)
     return out
+
+
+def _modulation_provides(ctx: AnalysisContext) -> Mapping[str, str]:
+    """``modulation_index`` in AM, nothing otherwise (pipeline ``provides``)."""
+    return {"modulation_index": "1"} if ctx.signal.mode == "am" else {}
+
+
+modulation_figures.provides = _modulation_provides  # type: ignore[attr-defined]

@@ -14,10 +14,17 @@
 3. Each figure provider in :data:`PROVIDERS` (or ``providers``) is called in order with
    the shared :class:`~iqscope.measure.AnalysisContext` and returns a
    :class:`~iqscope.measure.FigureSet`. A provider that raises does not stop the
-   others: its exception becomes a warning, and the measurements it declares in an
-   optional ``provides`` attribute (``{name: unit}``) are reported with value null and
-   the reason. When two providers give the same key, the first value wins (a value
-   beats a null).
+   others: its exception becomes a warning, and the measurements it declares in its
+   ``provides`` attribute are reported with value null and the reason. When two
+   providers give the same key, the first value wins (a value beats a null).
+
+``provides`` declares what a provider reports: a mapping ``{name: unit}``, or a
+callable ``provides(ctx) -> {name: unit}`` when that depends on the context (the
+resolved mode ``ctx.signal.mode``, the options). It lists only the figures that apply
+in that context, since a figure that does not apply to the mode stays absent, never
+null (DESIGN.md section 4). Every provider in :data:`PROVIDERS` declares one (a test
+checks that what each reports is within it); a provider without it loses its figures
+when it fails.
 
 Resolution: by default the bin spacing is at most :data:`DEFAULT_BIN_HZ` (6.25 Hz), so
 a carrier 100 Hz from a sideband is 16 bins away, outside both main lobes (+/- 4 bins
@@ -25,9 +32,10 @@ for Blackman-Harris), with room for the local noise estimate between them; a sho
 recording gets a coarser resolution (at least :data:`MIN_AVERAGES` averages) and a
 warning. ``request.resolution_hz`` (``--resolution``) sets the bin spacing.
 
-Adding a provider: append it to :data:`PROVIDERS` (one line). It receives the context
-(``ctx.spectrum``, ``ctx.signal``, ``ctx.noise_floor_psd`` ...) and may stream the
-recording again from ``ctx.recording`` if it must.
+Adding a provider: append it to :data:`PROVIDERS` (one line) and give it a
+``provides`` declaration. It receives the context (``ctx.spectrum``, ``ctx.signal``,
+``ctx.noise_floor_psd`` ...) and may stream the recording again from ``ctx.recording``
+if it must.
 """
 
 from __future__ import annotations
@@ -70,6 +78,7 @@ __all__ = [
     "Plan",
     "plan_pass",
     "analyse",
+    "declared_figures",
 ]
 
 #: Default largest bin spacing, Hz (sidebands 100 Hz from a carrier are 16 bins away).
@@ -369,6 +378,19 @@ def _drift_option(request: AnalysisRequest, key: str) -> float | None:
     return float(v) if isinstance(v, (int, float)) else None
 
 
+def declared_figures(provider: FigureProvider, ctx: AnalysisContext) -> dict[str, str]:
+    """The figures ``provider`` declares for this context (``{name: unit}``, see the module
+    docstring); empty when it declares none or its declaration itself fails."""
+    provides: Any = getattr(provider, "provides", None)
+    try:
+        declared = provides(ctx) if callable(provides) else provides
+    except Exception:  # noqa: BLE001 - a broken declaration must not sink the analysis
+        return {}
+    if not isinstance(declared, Mapping):
+        return {}
+    return {str(k): str(u) for k, u in declared.items()}
+
+
 def _run_provider(provider: FigureProvider, ctx: AnalysisContext) -> tuple[FigureSet, float]:
     t0 = time.perf_counter()
     name = getattr(provider, "__name__", type(provider).__name__)
@@ -379,10 +401,8 @@ def _run_provider(provider: FigureProvider, ctx: AnalysisContext) -> tuple[Figur
     except Exception as exc:  # noqa: BLE001 - one failing provider must not sink the others
         reason = f"{name} failed: {type(exc).__name__}: {exc}"
         fs = FigureSet(warnings=[reason])
-        provides: Any = getattr(provider, "provides", None)
-        if isinstance(provides, dict):
-            for key, unit in provides.items():
-                fs.measurements[str(key)] = failed(str(unit), f"not measured ({reason})")
+        for key, unit in declared_figures(provider, ctx).items():
+            fs.measurements[key] = failed(unit, f"not measured ({reason})")
     return fs, time.perf_counter() - t0
 
 

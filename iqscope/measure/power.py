@@ -679,3 +679,14 @@ def line_power_dbm(calibration: Calibration, power_fs2: float) -> float:
     if not power_fs2 > 0:
         raise ValueError(f"{power_fs2=} must be > 0")
     return calibration.dbm(_db(power_fs2))
+
+
+def _power_provides(ctx: AnalysisContext) -> Mapping[str, str]:
+    """The four power figures when a calibration is given, none otherwise (pipeline ``provides``)."""
+    opts = ctx.request.options
+    if not (isinstance(opts, Mapping) and opts.get("calibration") is not None):
+        return {}
+    return {"mean_power_dbm": "dBm", "mean_power_w": "W", "pep_dbm": "dBm", "pep_w": "W"}
+
+
+power_figures.provides = _power_provides  # type: ignore[attr-defined]

@@ -15,6 +15,7 @@ falls on the opposite one, and the note says the figure may be the receiver's.
 from __future__ import annotations
 
 import math
+from collections.abc import Mapping
 
 from ..dsp._lines import line_power
 from ._context import AnalysisContext, FigureSet
@@ -141,3 +142,16 @@ def sideband_figures(ctx: AnalysisContext) -> FigureSet:
         else:
             out.measurements[name] = failed("dB", "sidebands not detectable above the noise floor")
     return out
+
+
+def _sideband_provides(ctx: AnalysisContext) -> Mapping[str, str]:
+    """The figure :func:`sideband_figures` reports in this context's mode (pipeline ``provides``)."""
+    mode = ctx.signal.mode
+    if mode in ("usb", "lsb"):
+        return {"opposite_sideband_suppression_db": "dB"}
+    if mode in ("dsb", "am"):
+        return {"sideband_balance_db": "dB"}
+    return {}
+
+
+sideband_figures.provides = _sideband_provides  # type: ignore[attr-defined]

@@ -419,3 +419,7 @@ def spur_figures(ctx: AnalysisContext) -> FigureSet:
         details=details,
     )
     return out
+
+
+#: The worst spur applies in every mode (pipeline ``provides``).
+spur_figures.provides = {"worst_spur_dbc": "dBc"}  # type: ignore[attr-defined]
