@@ -100,6 +100,15 @@ def main(argv: Sequence[str] | None = None) -> int:
         return EXIT_INTERRUPTED
     except BrokenPipeError:
         return EXIT_ERROR
+    except Exception as exc:  # a bug: still one line and a documented status, never a traceback
+        if args.debug:
+            raise
+        print(
+            f"iqscope: internal error: {type(exc).__name__}: {exc} "
+            "(run with --debug for the traceback, and please report it)",
+            file=sys.stderr,
+        )
+        return EXIT_ERROR
 
 
 def run() -> None:  # pragma: no cover - console-script shim

@@ -28,7 +28,6 @@ from ..errors import (
     InputError,
     IqscopeError,
     MeasurementError,
-    OutputError,
     UsageError,
 )
 
@@ -160,19 +159,14 @@ def _check_outputs(args: argparse.Namespace, stems: list[str]) -> None:
     """Refuse before any work when an output exists (without --force) or cannot be made."""
     from ..io._atomic import check_can_write
     from ..report._plots import PLOT_NAMES
+    from ._options import check_plot_folder
 
     if args.report:
         check_can_write(args.report, force=args.force)
     if args.plot:
-        folder = Path(args.plot)
-        if folder.exists() and not folder.is_dir():
-            raise UsageError(f"--plot needs a folder, but {folder} is a file")
-        if not folder.exists() and not folder.absolute().parent.is_dir():
-            raise OutputError("the folder to create the plot folder in does not exist", folder)
-        if folder.is_dir():
-            for stem in stems:
-                for name in PLOT_NAMES:
-                    check_can_write(folder / f"{stem}-{name}.png", force=args.force)
+        check_plot_folder(
+            args.plot, [f"{stem}-{name}.png" for stem in stems for name in PLOT_NAMES], force=args.force
+        )
     if args.annotate:
         from ..report._annotate import annotated_meta_path
 
@@ -284,12 +278,9 @@ def _write_outputs(args: argparse.Namespace, results: list[Any], stems: list[str
         images = [render_plots(r) for r in results]
     if args.plot:
         from ..io._atomic import atomic_write
+        from ._options import make_plot_folder
 
-        folder = Path(args.plot)
-        try:
-            folder.mkdir(exist_ok=True)
-        except OSError as exc:
-            raise OutputError(f"cannot create the plot folder: {exc.strerror or exc}", folder) from exc
+        folder = make_plot_folder(args.plot)
         for stem, pngs in zip(stems, images):
             for name, png in pngs.items():
                 target = folder / f"{stem}-{name}.png"

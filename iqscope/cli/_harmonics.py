@@ -94,10 +94,9 @@ def run(args: argparse.Namespace) -> int:
     if len(files) < 2:
         raise UsageError("give the fundamental's recording and at least one harmonic's recording")
     if args.plot:
-        from ..io._atomic import check_can_write
+        from ._options import check_plot_folder, make_plot_folder
 
-        Path(args.plot).mkdir(exist_ok=True)
-        check_can_write(Path(args.plot) / "harmonics.png", force=args.force)
+        make_plot_folder(check_plot_folder(args.plot, ["harmonics.png"], force=args.force))
     levels = {path: _levels(path, args) for path in files}
     if args.fundamental:
         fund = levels[files[0]]

@@ -134,10 +134,9 @@ def run(args: argparse.Namespace) -> int:
     else:
         drives = [None] * len(files)
     if args.plot:
-        from ..io._atomic import check_can_write
+        from ._options import check_plot_folder, make_plot_folder
 
-        Path(args.plot).mkdir(exist_ok=True)
-        check_can_write(Path(args.plot) / "sweep.png", force=args.force)
+        make_plot_folder(check_plot_folder(args.plot, ["sweep.png"], force=args.force))
     options: dict[str, Any] = {}
     if args.calibration:
         from ..measure.power import load_calibration
