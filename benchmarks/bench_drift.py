@@ -4,7 +4,7 @@ Writes (once, streamed in blocks) a raw cf32 SigMF recording of a CW carrier dri
 linearly (2.37 Hz/min, plus a slow 0.8 Hz sine wander) in white noise: 3600 s x 48 kS/s
 = 172.8 M samples, 1.38 GB. Then, in a fresh child process, ``iqscope.measure.drift.
 analyse_drift`` follows it and the child reports wall time and peak resident memory
-(``VmHWM``). The issue's acceptance: peak memory under 300 MB.
+(``VmHWM``). Target: peak memory under 300 MB.
 
 Usage::
 

@@ -3,8 +3,8 @@
 Source: textbook AM (S. Haykin, *Communication Systems*, ch. on amplitude modulation;
 REFERENCES.md item 7): s(t) = Ac [1 + m cos(wm t)] e^{j wc t} has a carrier of amplitude
 Ac and two sidebands of amplitude m Ac / 2, i.e. 20 log10(m/2) dBc each; the envelope
-extremes are Ac (1 +/- m), so (Emax - Emin)/(Emax + Emin) = m. Tolerance 0.01 in m, as
-the issue asks.
+extremes are Ac (1 +/- m), so (Emax - Emin)/(Emax + Emin) = m. Tolerance 0.01 in m (the
+project's acceptance target: finer than a builder can set a drive control).
 """
 
 from __future__ import annotations

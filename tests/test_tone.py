@@ -53,7 +53,7 @@ class TestCrlb:
 class TestMonteCarlo:
     """Estimator variance against the Rife–Boorstyn bound (REFERENCES.md item 8).
 
-    Tolerance: the issue asks for "within 2x of the bound"; the variance of a variance
+    Tolerance: the project's target is "within 2x of the bound" at moderate SNR; the variance of a variance
     estimate from K trials has relative std sqrt(2/K) (~8 % for K = 300), so a lower
     limit of 0.75 is > 3 sigma below the bound (an estimator cannot beat it on average).
     """
