@@ -36,8 +36,8 @@ COMMAND_MODULES = (
 EXIT_STATUS_HELP = """\
 exit status:
   0  success (grade: every verdict passed)
-  1  grade: worst verdict is warn
-  2  grade: worst verdict is fail
+  1  grade: worst verdict is warn (harmonics: inconclusive)
+  2  grade: worst verdict is fail (harmonics: a harmonic exceeds its limit)
   3  unusable input (missing, malformed, truncated file, absurd metadata)
   4  usage error (bad or conflicting options, unusable limits profile)
   5  other error (output exists, capture device, internal failure)
