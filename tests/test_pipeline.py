@@ -180,6 +180,39 @@ def test_every_provider_declares_what_it_reports(case) -> None:  # type: ignore[
         assert got == declared, name
 
 
+def test_pass_guards_samples_like_the_readers(rng: np.random.Generator) -> None:
+    """A Recording that overrides ``read`` (bypassing the readers' guard) and hands out
+    components beyond MAX_FLOAT_COMPONENT or NaN: the pass replaces those samples by 0 and
+    counts them exactly as ``Recording.read`` does, so the spectrum and levels equal those
+    of the same data read through the guard (the io layer is the reference here)."""
+    from iqscope.io._recording import MAX_FLOAT_COMPONENT
+
+    n = 1 << 15
+    t = np.arange(n) / FS
+    x = (0.3 * np.exp(2j * np.pi * 1500.3 * t) + _noise(rng, n, 1e-8)).astype(np.complex64)
+    x[100:400] = 1e19
+    x[5000] = complex(0.1, float(np.nextafter(np.float32(MAX_FLOAT_COMPONENT), np.float32(np.inf))))
+    x[7000] = complex(np.nan, 0.0)
+
+    class Raw(Recording):
+        def __init__(self) -> None:
+            super().__init__(path=None, format="test", datatype="cf32_le", sample_rate_hz=FS, n_samples=n)
+
+        def read(self, start: int = 0, count: int | None = None) -> np.ndarray:  # no io guard
+            return x[start : n if count is None else start + count]
+
+    req = AnalysisRequest(mode="cw")
+    providers = PROVIDERS[:6]  # the pass and the core figures (the drift survey reads raw)
+    with np.errstate(all="ignore"):
+        raw = analyse(Raw(), req, providers=providers)
+    ref = analyse(ArrayRecording(x, FS), req, providers=providers)
+    assert np.array_equal(raw.spectrum.psd, ref.spectrum.psd)
+    for key in ("peak_dbfs", "noise_floor_dbfs_per_hz", "carrier_suppression_db", "occupied_bandwidth_hz"):
+        if key in ref.measurements:
+            assert raw.measurements[key].value == ref.measurements[key].value, key
+    assert any("302 non-finite sample(s)" in w for w in raw.warnings), raw.warnings
+
+
 class _Spy(Recording):
     """Counts the largest read, to show the pipeline streams."""
 

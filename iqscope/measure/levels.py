@@ -82,7 +82,8 @@ def level_figures(ctx: AnalysisContext) -> FigureSet:
         if art is not None:
             out.artefacts.append(art)
         if st.n_nonfinite:
-            out.warnings.append(f"{st.n_nonfinite} non-finite sample(s) (NaN/Inf) counted as 0")
+            out.warnings.append(f"{st.n_nonfinite} non-finite sample(s) (NaN/Inf, or a component beyond "
+                                "1e10 x full scale) counted as 0")
 
     # -- noise floor -----------------------------------------------------------------
     if not math.isfinite(floor.psd) or floor.psd <= 0:

@@ -53,7 +53,7 @@ from scipy import fft as sp_fft
 from ..dsp._envelope import block_envelope
 from ..dsp._noise import noise_floor
 from ..dsp._spectrum import AveragedSpectrum, SpectrumAccumulator, SubbandCapture
-from ..io._recording import Recording
+from ..io._recording import MAX_FLOAT_COMPONENT, Recording
 from ._analysis import Analysis, RecordingInfo, Trace
 from ._context import AnalysisContext, AnalysisRequest, FigureProvider, FigureSet
 from ._result import Artefact, Measurement, failed
@@ -223,7 +223,15 @@ def plan_pass(sample_rate_hz: float, n_samples: int, resolution_hz: float | None
 
 
 class _Levels:
-    """Fast float32 level statistics of a stream (peak, mean, DC, clipping)."""
+    """Fast float32 level statistics of a stream (peak, mean, DC, clipping).
+
+    It is also the pass's guard: a sample with a NaN/Inf component or one beyond
+    :data:`~iqscope.io.MAX_FLOAT_COMPONENT` (which the readers already replace, but a
+    :class:`~iqscope.io.Recording` that overrides ``read`` may hand out) is replaced by
+    0 and counted, like the readers do, so that no float32 square or FFT of the pass can
+    overflow. The check uses the largest component, which the clipping count needs
+    anyway: no extra pass over the samples.
+    """
 
     def __init__(self, clip_level: float) -> None:
         self.clip = float(clip_level)
@@ -238,22 +246,20 @@ class _Levels:
 
     def update(self, x: npt.NDArray[np.complex64]) -> tuple[npt.NDArray[np.complex64], npt.NDArray[np.float32]]:
         v = x.view(np.float32)
+        vmax = max(float(v.max()), -float(v.min()))  # NaN when any component is NaN
+        if not vmax <= MAX_FLOAT_COMPONENT:
+            bad = ~(np.abs(v) <= MAX_FLOAT_COMPONENT).reshape(-1, 2).all(axis=1)
+            self.nonfinite += int(np.count_nonzero(bad))
+            x = np.where(bad, np.complex64(0), x).astype(np.complex64)
+            v = x.view(np.float32)
+            vmax = max(float(v.max()), -float(v.min()))
         p = v[0::2] * v[0::2]
         p += v[1::2] * v[1::2]
         s = float(p.sum(dtype=np.float64))
-        if not math.isfinite(s):
-            bad = ~np.isfinite(x)
-            self.nonfinite += int(bad.sum())
-            x = np.where(bad, np.complex64(0), x).astype(np.complex64)
-            v = x.view(np.float32)
-            p = v[0::2] * v[0::2]
-            p += v[1::2] * v[1::2]
-            s = float(p.sum(dtype=np.float64))
         self.n += x.size
         self.sum_p += s
         self.peak = max(self.peak, float(p.max()))
         self.dc += complex(np.sum(x, dtype=np.complex128))
-        vmax = max(float(v.max()), -float(v.min()))
         if vmax >= self.clip:
             self.clipped += int(np.count_nonzero((np.abs(x.real) >= self.clip) | (np.abs(x.imag) >= self.clip)))
         if vmax > self.max_comp:
