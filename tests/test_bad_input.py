@@ -74,6 +74,50 @@ def test_folder_given(tmp_path: Path, capsys: pytest.CaptureFixture[str]) -> Non
     _assert_refused(capsys, str(tmp_path / "d.wav"), match="folder")
 
 
+def _within(seconds: float, fn: Any) -> Any:
+    """Run ``fn()`` in a daemon thread; fail (instead of hanging) when it blocks, as
+    opening a named pipe for reading does until a writer comes."""
+    import threading
+
+    box: dict[str, Any] = {}
+
+    def run() -> None:
+        box["value"] = fn()
+
+    th = threading.Thread(target=run, daemon=True)
+    th.start()
+    th.join(seconds)
+    assert not th.is_alive(), "blocked: a named pipe was opened"
+    return box.get("value")
+
+
+@pytest.mark.skipif(not hasattr(os, "mkfifo"), reason="no named pipes on this platform")
+@pytest.mark.parametrize(
+    ("where", "args", "named"),
+    [
+        ("sigmf dataset", ["r.sigmf-meta"], "r.sigmf-meta"),  # the metadata is fine, its dataset a pipe
+        ("hdf5 with a dataset path", ["p.h5:/iq"], "p.h5"),
+        ("no extension (sniffed)", ["pipe"], "pipe"),
+        ("no extension, --format sigmf", ["pipe", "--format", "sigmf"], "pipe"),
+        ("--format cs16", ["pipe", "--format", "cs16", "--rate", "8000"], "pipe"),
+    ],
+)
+def test_named_pipe_is_not_a_regular_file(
+    tmp_path: Path, capsys: pytest.CaptureFixture[str], where: str, args: list[str], named: str
+) -> None:
+    """A named pipe anywhere a file is read is refused as "not a regular file", naming the
+    file, without being opened (it was reported "not found" as a SigMF dataset or behind
+    an HDF5 ':dataset' suffix, and sniffing a pipe without an extension blocked)."""
+    meta = _sigmf(tmp_path)
+    (tmp_path / "r.sigmf-data").unlink()
+    for name in ("r.sigmf-data", "p.h5", "pipe"):
+        os.mkfifo(tmp_path / name)
+    argv = [str(tmp_path / args[0]) if i == 0 else a for i, a in enumerate(args)]
+    line = _within(10.0, lambda: _assert_refused(capsys, *argv, match="not a regular file (a named pipe)"))
+    assert str(tmp_path / named) in line and "not found" not in line, line
+    assert meta.exists()
+
+
 @pytest.mark.parametrize("name", ["e.sigmf-meta", "e.wav", "e.h5", "e.cf32", "e.sigmf"])
 def test_empty_file(tmp_path: Path, capsys: pytest.CaptureFixture[str], name: str) -> None:
     (tmp_path / name).write_bytes(b"")

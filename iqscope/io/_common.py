@@ -23,6 +23,7 @@ __all__ = [
     "read_sidecar",
     "check_center",
     "resolve_rate",
+    "not_regular_reason",
 ]
 
 #: Suffix of our own sidecar file, appended to the full file name (``x.wav.iqscope.json``).
@@ -100,6 +101,23 @@ def parse_json_bytes(raw: bytes, path: Path) -> Any:
         raise FormatError("JSON nested too deeply", path) from exc
 
 
+def not_regular_reason(mode: int) -> str:
+    """Why a file of ``st_mode`` ``mode`` is no recording: ``"is a folder"`` or ``"not a
+    regular file (a named pipe)"`` (a socket, a device ...). Such files are refused before
+    they are opened: opening a named pipe would wait for a writer."""
+    if stat.S_ISDIR(mode):
+        return "is a folder"
+    if stat.S_ISFIFO(mode):
+        kind = "a named pipe"
+    elif stat.S_ISSOCK(mode):
+        kind = "a socket"
+    elif stat.S_ISCHR(mode) or stat.S_ISBLK(mode):
+        kind = "a device"
+    else:
+        kind = "a special file"
+    return f"not a regular file ({kind})"
+
+
 def read_json_file(path: Path) -> Any:
     """Read and decode a JSON file of bounded size."""
     try:
@@ -109,7 +127,7 @@ def read_json_file(path: Path) -> Any:
     except OSError as exc:
         raise InputMissingError(f"cannot read: {exc.strerror or exc}", path) from exc
     if not stat.S_ISREG(st.st_mode):
-        raise InputMissingError("not a regular file", path)
+        raise InputMissingError(not_regular_reason(st.st_mode), path)
     if st.st_size > MAX_JSON_BYTES:
         raise FormatError(f"metadata of {st.st_size} bytes is larger than we read", path)
     try:

@@ -10,6 +10,7 @@ memory on a long pass). The file is opened read-only and never written.
 from __future__ import annotations
 
 import os
+import stat
 import weakref
 from collections.abc import Mapping, Sequence
 from dataclasses import dataclass
@@ -20,6 +21,7 @@ import numpy as np
 import numpy.typing as npt
 
 from ..errors import FormatError, InputMissingError
+from ._common import not_regular_reason
 from ._formats import SampleFormat
 from ._recording import Annotation, Recording, Segment
 
@@ -63,11 +65,8 @@ def file_size(path: Path) -> int:
         raise InputMissingError("file not found", path) from exc
     except OSError as exc:
         raise InputMissingError(f"cannot read: {exc.strerror or exc}", path) from exc
-    import stat
-
     if not stat.S_ISREG(st.st_mode):
-        kind = "a folder" if stat.S_ISDIR(st.st_mode) else "not a regular file"
-        raise InputMissingError(f"is {kind}, not a recording file", path)
+        raise InputMissingError(f"{not_regular_reason(st.st_mode)}, not a recording file", path)
     return st.st_size
 
 

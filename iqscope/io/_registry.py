@@ -4,20 +4,22 @@ Each reader is described by a :class:`ReaderSpec` (name, aliases, file-name
 extensions, a content sniffer and an ``open`` function). :func:`open_recording` picks a
 reader by, in order: the ``format`` argument (a reader name, an alias, or a sample
 datatype such as ``ci16`` which means a raw file), the file-name extension (longest
-match wins), then the first bytes of the file. There is no if-chain over formats: adding
+match wins), then the first bytes of the file. A folder, named pipe, socket
+or device is refused before anything opens it. There is no if-chain over formats: adding
 a reader is one :func:`register_reader` call.
 """
 
 from __future__ import annotations
 
 import os
+import stat
 from collections.abc import Callable
 from dataclasses import dataclass
 from pathlib import Path
 from typing import Final
 
 from ..errors import FormatError, InputMissingError, UsageError
-from ._common import check_center
+from ._common import check_center, not_regular_reason
 from ._formats import parse_datatype
 from ._recording import Recording, check_sample_rate
 
@@ -143,7 +145,19 @@ def find_reader(path: Path, format: str | None = None) -> tuple[ReaderSpec, str 
     )
 
 
+def _refuse_special(path: Path) -> None:
+    """Refuse a folder, named pipe, socket or device before anything opens it (opening a
+    named pipe waits for a writer). A missing or unreadable path is left to the caller."""
+    try:
+        st = os.stat(path)
+    except OSError:
+        return
+    if not stat.S_ISREG(st.st_mode):
+        raise InputMissingError(f"{not_regular_reason(st.st_mode)}, not a recording file", path)
+
+
 def _head(path: Path) -> bytes:
+    _refuse_special(path)
     try:
         with open(path, "rb") as fh:
             return fh.read(SNIFF_BYTES)
@@ -165,7 +179,8 @@ def _split_subpath(text: str) -> tuple[Path, str | None]:
         if pos <= 0:
             return Path(text), None
         head, tail = text[:pos], text[pos + 1 :]
-        if os.path.isfile(head):
+        # any existing non-folder (a named pipe too: the reader then says what it is)
+        if os.path.lexists(head) and not os.path.isdir(head):
             return Path(head), tail or None
 
 
@@ -216,6 +231,7 @@ def open_recording(
             given = meta
         else:
             raise InputMissingError("file not found", given)
+    _refuse_special(given)
     spec, dt = find_reader(given, format)
     if subpath is not None and not spec.takes_subpath:
         raise InputMissingError("file not found (only HDF5 files take a ':dataset' suffix)", Path(os.fspath(path)))

@@ -23,6 +23,7 @@ import datetime as _dt
 import hashlib
 import json
 import math
+import os
 import tarfile
 from collections.abc import Iterable, Iterator, Mapping, Sequence
 from pathlib import Path
@@ -264,6 +265,19 @@ def _build(
     )
 
 
+def _dataset_size(data_path: Path, meta_path: Path) -> int:
+    """Size of the dataset file, or an :class:`InputMissingError` naming the metadata file
+    and saying why (not found, a folder, a named pipe ...)."""
+    try:
+        return file_size(data_path)
+    except InputMissingError as exc:
+        if os.path.exists(data_path):
+            why = f"dataset file {data_path.name}: {exc.message.removesuffix(', not a recording file')}"
+        else:
+            why = f"dataset file {data_path.name} not found next to the metadata"
+        raise InputMissingError(why, meta_path) from exc
+
+
 def _open_pair(req: OpenRequest) -> Recording:
     meta_path, default_data = sigmf_paths(req.path)
     if req.path.name.lower().endswith(DATA_EXT) and not meta_path.exists():
@@ -274,10 +288,7 @@ def _open_pair(req: OpenRequest) -> Recording:
         raise FormatError("a metadata-only recording holds no samples", meta_path)
     name = glob.get(K_DATASET) if isinstance(glob, Mapping) else None
     data_path = safe_sibling(meta_path, name if name is not None else default_data.name)
-    try:
-        size = file_size(data_path)
-    except InputMissingError as exc:
-        raise InputMissingError(f"dataset file {data_path.name} not found next to the metadata", meta_path) from exc
+    size = _dataset_size(data_path, meta_path)
     warnings: list[str] = []
     return _build(doc, meta_path, data_path, 0, size, req, warnings, meta_path)
 
@@ -367,10 +378,7 @@ def open_sigmf(req: OpenRequest) -> Recording:
     glob = doc.get("global") if isinstance(doc, Mapping) else None
     if isinstance(glob, Mapping) and glob.get(K_DATASET) is not None:
         data = safe_sibling(req.path, glob[K_DATASET])
-    try:
-        size = file_size(data)
-    except InputMissingError as exc:
-        raise InputMissingError(f"dataset file {data.name} not found next to the metadata", req.path) from exc
+    size = _dataset_size(data, req.path)
     return _build(doc, req.path, data, 0, size, req, [], req.path)
 
 
