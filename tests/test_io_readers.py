@@ -55,6 +55,38 @@ def test_registry_integrity() -> None:
         find_reader(Path("x"), "nosuchformat")
 
 
+def test_every_extension_is_a_format_name() -> None:
+    """``--format`` takes each reader's extension without its dot and reads the file as one
+    with that extension would be read (``.cs16`` files were accepted but ``--format cs16``
+    refused); a leading dot is accepted too."""
+    from iqscope.io._registry import _by_extension
+
+    for spec in READERS.values():
+        for ext in spec.extensions:
+            want = _by_extension(Path("x" + ext))
+            assert want[0] is spec
+            assert find_reader(Path("x.unknown-ext"), ext[1:]) == want, ext
+            assert find_reader(Path("x.unknown-ext"), ext.upper()) == want, ext
+    with pytest.raises(UsageError, match="extension"):
+        find_reader(Path("x"), "cs17")
+
+
+def test_format_cs16_reads_like_the_extension(tmp_path: Path, rng: np.random.Generator) -> None:
+    """The same 16-bit interleaved bytes read as ``x.cs16`` and as ``x.bin --format cs16``
+    give identical samples (ci16_le: full scale 32768, SigMF datatype convention)."""
+    x = _signal(rng, 1000)
+    codes = np.empty(2000, "<i2")
+    codes[0::2], codes[1::2] = np.rint(x.real * 32768), np.rint(x.imag * 32768)  # |components| <= 0.6
+    (tmp_path / "a.cs16").write_bytes(codes.tobytes())
+    (tmp_path / "a.bin").write_bytes(codes.tobytes())
+    with open_recording(tmp_path / "a.cs16", rate=8000) as by_ext, \
+            open_recording(tmp_path / "a.bin", format="cs16", rate=8000) as by_name:
+        assert by_name.datatype == by_ext.datatype == "ci16_le"
+        assert np.array_equal(by_name.read(), by_ext.read())
+        # each component rounded to half a code: |error| <= sqrt(2)/2 code < 1 code
+        np.testing.assert_allclose(by_ext.read(), x, rtol=0, atol=1.0 / 32768)
+
+
 @pytest.mark.parametrize(
     "make",
     ["sigmf", "wav", "hdf5"],

@@ -69,7 +69,8 @@ def add_tracking_options(p: argparse.ArgumentParser) -> None:
     t.add_argument("--settle-band", metavar="HZ", type=_positive_hz, default=1.0,
                    help="settling band half-width, Hz (default 1)")
     r = p.add_argument_group("reading the input")
-    r.add_argument("--format", metavar="F", help="reader (sigmf, wav, hdf5, raw) or raw datatype (cf32, ci16, ci8, cu8 ...)")
+    r.add_argument("--format", metavar="F", help="reader (sigmf, wav, hdf5, raw), raw datatype (cf32, ci16, ci8, cu8 ...) "
+                   "or file extension (cs16, sc8, cfile ...)")
     r.add_argument("--rate", metavar="HZ", type=_positive_hz, help="sample rate, Hz (overrides the file)")
     r.add_argument("--center", metavar="HZ", type=frequency, help="centre frequency, Hz (overrides the file)")
 

@@ -2,9 +2,10 @@
 
 Each reader is described by a :class:`ReaderSpec` (name, aliases, file-name
 extensions, a content sniffer and an ``open`` function). :func:`open_recording` picks a
-reader by, in order: the ``format`` argument (a reader name, an alias, or a sample
-datatype such as ``ci16`` which means a raw file), the file-name extension (longest
-match wins), then the first bytes of the file. A folder, named pipe, socket
+reader by, in order: the ``format`` argument (a reader name, an alias, a sample
+datatype such as ``ci16`` which means a raw file, or any reader's file-name extension
+such as ``cs16``, read as a file with that extension is), the file-name extension
+(longest match wins), then the first bytes of the file. A folder, named pipe, socket
 or device is refused before anything opens it. There is no if-chain over formats: adding
 a reader is one :func:`register_reader` call.
 """
@@ -103,6 +104,16 @@ def _by_name(name: str) -> ReaderSpec | None:
     return None
 
 
+def _by_extension_name(name: str) -> tuple[ReaderSpec | None, str | None]:
+    """The reader (and implied datatype) of a file-name extension given as a format name:
+    ``cs16`` (or ``.cs16``) is what a ``.cs16`` file is read as."""
+    key = "." + name.strip().lower().lstrip(".")
+    for spec in READERS.values():
+        if key in spec.extensions:
+            return spec, dict(spec.extension_datatypes).get(key)
+    return None, None
+
+
 def _by_extension(path: Path) -> tuple[ReaderSpec | None, str | None]:
     lname = path.name.lower()
     best: tuple[int, ReaderSpec | None, str | None] = (0, None, None)
@@ -126,13 +137,17 @@ def find_reader(path: Path, format: str | None = None) -> tuple[ReaderSpec, str 
         if spec is not None:
             return spec, None
         try:
-            dt = parse_datatype(format).name
+            return READERS["raw"], parse_datatype(format).name
         except ValueError:
-            names = ", ".join(sorted(READERS))
-            raise UsageError(
-                f"unknown format {format!r}: use one of {names} or a raw datatype such as cf32, ci16, ci8, cu8"
-            ) from None
-        return READERS["raw"], dt
+            pass
+        spec, implied = _by_extension_name(format)
+        if spec is not None:
+            return spec, implied
+        names = ", ".join(sorted(READERS))
+        raise UsageError(
+            f"unknown format {format!r}: use one of {names}, a raw datatype such as cf32, ci16, ci8, cu8, "
+            "or a file extension such as cs16"
+        )
     spec, implied = _by_extension(path)
     if spec is not None:
         return spec, implied
@@ -199,9 +214,10 @@ def open_recording(
         The recording: ``x.sigmf-meta`` (or ``x.sigmf-data``, or the base name ``x``),
         ``x.sigmf`` (archive), ``x.wav``, ``x.h5`` or ``x.h5:/group/dataset``, or a raw file.
     format : str, optional
-        Reader name or alias (``sigmf``, ``wav``, ``raw``, ``hdf5`` ...), or a sample
-        datatype (``cf32``, ``ci16_le``, ``cu8`` ...) meaning a raw interleaved file. Overrides
-        the extension and content sniffing.
+        Reader name or alias (``sigmf``, ``wav``, ``raw``, ``hdf5`` ...), a sample
+        datatype (``cf32``, ``ci16_le``, ``cu8`` ...) meaning a raw interleaved file, or a
+        file-name extension without its dot (``cs16``, ``sc8``, ``cfile``, ``h5`` ...) read
+        as a file with that extension. Overrides the extension and content sniffing.
     rate : float, optional
         Sample rate in Hz; overrides the file's metadata (needed for raw files and for
         SigMF without ``core:sample_rate``).
