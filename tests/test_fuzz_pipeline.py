@@ -16,8 +16,8 @@ The reader-level properties (arbitrary bytes, mutated headers, arbitrary metadat
 
 Bounded by the hypothesis profile of ``tests/conftest.py`` ("ci" by default, a few
 seconds); the long run is ``pytest tests/test_fuzz_pipeline.py --hypothesis-profile=long``
-(docs/robustness.md). Known faults in files this suite may not change are xfail tests at
-the end, with their exact reproduction.
+(docs/robustness.md). Faults it found are kept at the end as regression tests, with their
+exact reproduction (they were xfail until fixed).
 """
 
 from __future__ import annotations
@@ -234,7 +234,7 @@ def test_arbitrary_options_through_grade(mode: str, options: dict[str, str]) -> 
 
 
 # --------------------------------------------------------------------------------------
-# Known faults in files this suite may not change (xfail, exact reproductions)
+# Faults found by fuzzing, fixed: regression tests with the exact reproductions
 # --------------------------------------------------------------------------------------
 def test_bandwidth_provider_on_a_gapped_constant() -> None:
     """analyse(ArrayRecording(y, 48000.0), AnalysisRequest(mode="dsb", resolution_hz=0.001))
