@@ -114,3 +114,63 @@ def test_symmetry_centre_of_a_continuum() -> None:
     centre, score = symmetry_centre(s, f, 2.0, near=2)
     assert centre == pytest.approx(f[0] + 99.5 * 2.0, abs=1.0)
     assert score > 0.5
+
+
+# -- a receiver DC line stronger than the emission (review finding 1) -----------------
+# A direct-conversion receiver's DC offset is a constant added to x: a line at exactly
+# 0 Hz (closed form: the DFT of a constant is a single line at bin 0). Levels: DC at
+# -30 dBFS (|x|^2 = 1e-3), emission lines at -40 dBFS, noise at -90 dBFS total power.
+_DC = 10 ** (-30 / 20)
+_A40 = 10 ** (-40 / 20)
+
+
+def test_dc_line_stronger_than_ssb_tone_is_not_the_tone(rng: np.random.Generator) -> None:
+    """``--mode usb --tone 1000``: the carrier is the tone line minus 1000 Hz, not DC - 1000."""
+    f0 = 3000.0
+    x = _DC + tone(f0 + 1000.0, _A40) + _noise(rng)
+    an = analyse(ArrayRecording(x, FS), AnalysisRequest(mode="usb", tone_hz=1000.0))
+    # Sub-bin centroid of a line 50 dB above the noise: well inside 0.05 Hz (bin 0.73 Hz).
+    assert an.signal.carrier_offset_hz == pytest.approx(f0, abs=0.05)
+    assert "dc_line" in {a.kind for a in an.artefacts}
+    cs = an.measurements["carrier_suppression_db"]
+    # No carrier was put in: the figure is a lower bound, not a 92 dB "measurement" of DC.
+    assert cs.limited_by_noise and cs.bound == "lower"
+
+
+@pytest.mark.parametrize("mode", ["auto", "dsb"])
+def test_dc_line_stronger_than_dsb_is_not_the_carrier(rng: np.random.Generator, mode: str) -> None:
+    """A -46 dBFS-per-line DSB tone pair about 3 kHz beside a -30 dBFS DC line: DSB at 3 kHz."""
+    f0, fm = 3000.0, 700.0
+    x = _DC + tone(f0 + fm, _A40 / 2) + tone(f0 - fm, _A40 / 2) + _noise(rng)
+    an = analyse(ArrayRecording(x, FS), AnalysisRequest(mode=mode))
+    assert an.signal.mode == "dsb"
+    assert an.signal.carrier_offset_hz == pytest.approx(f0, abs=0.05)
+    assert "dc_line" in {a.kind for a in an.artefacts}
+
+
+def test_dc_line_kept_when_alone_or_pointed_at(rng: np.random.Generator) -> None:
+    """The DC line is the carrier when it is all there is, or when --carrier points at it."""
+    an = analyse(ArrayRecording(_DC + _noise(rng), FS))
+    assert an.signal.mode == "cw" and an.signal.carrier_offset_hz == pytest.approx(0.0, abs=0.05)
+    x = _DC + tone(1000.0, _A40) + _noise(rng)
+    an = analyse(ArrayRecording(x, FS), AnalysisRequest(mode="cw", carrier_hz=0.0))
+    assert an.signal.carrier_offset_hz == 0.0
+    an = analyse(ArrayRecording(x, FS), AnalysisRequest(mode="cw"))
+    assert an.signal.carrier_offset_hz == pytest.approx(1000.0, abs=0.05)
+
+
+def test_split_dc_lines_rule() -> None:
+    """The shared rule (also drift.plan_lines): within max(2 bins, 1 Hz) of 0 Hz."""
+    from iqscope.dsp._lines import Peak, dc_tolerance_hz, split_dc_lines
+
+    assert dc_tolerance_hz(0.1) == 1.0 and dc_tolerance_hz(3.0) == 6.0
+    dc, other = Peak(0.4, 1.0, 0), Peak(500.0, 0.1, 100)
+    s = split_dc_lines([dc, other], 0.5)
+    assert s.kept == (other,) and s.dropped == (dc,) and not s.only_dc
+    s = split_dc_lines([dc], 0.5)
+    assert s.kept == (dc,) and s.only_dc
+    s = split_dc_lines([dc], 0.5, signal_elsewhere=True)
+    assert s.kept == () and s.dropped == (dc,)
+    s = split_dc_lines([dc, other], 0.5, hints=(0.0,))
+    assert s.kept == (dc, other) and not s.dropped
+    assert split_dc_lines([Peak(1.5, 1.0, 3), other], 0.5).dropped == ()

@@ -32,8 +32,9 @@ References
 from __future__ import annotations
 
 import math
+from collections.abc import Iterable, Sequence
 from dataclasses import dataclass
-from typing import Final
+from typing import Final, Generic, Protocol, TypeVar
 
 import numpy as np
 import numpy.typing as npt
@@ -65,6 +66,9 @@ __all__ = [
     "bin_index",
     "LineTrack",
     "track_line",
+    "dc_tolerance_hz",
+    "DcSplit",
+    "split_dc_lines",
 ]
 
 #: A line is detected when its noise-subtracted power exceeds this many noise-only sigmas
@@ -406,6 +410,90 @@ def find_peaks(
         f = float(np.dot(spectrum.freqs_hz[lo:hi], ex) / wsum) if wsum > 0 else float(spectrum.freqs_hz[i])
         out.append(Peak(frequency_hz=f, power=float(lobe[i]), index=i))
     return out
+
+
+class _HasFrequency(Protocol):
+    @property
+    def frequency_hz(self) -> float: ...
+
+
+_L = TypeVar("_L", bound=_HasFrequency)
+
+
+def dc_tolerance_hz(bin_hz: float) -> float:
+    """How close to 0 Hz (the capture centre) a line counts as the receiver's DC line, Hz.
+
+    ``max(2 bins, 1 Hz)``: a DC offset's line is centred on bin 0 to within the noise's
+    pull on the lobe centroid (a fraction of a bin); 1 Hz keeps the rule meaningful on
+    very fine resolutions.
+    """
+    return max(2.0 * float(bin_hz), 1.0)
+
+
+@dataclass(frozen=True)
+class DcSplit(Generic[_L]):
+    """Lines split into the ones to use and the ones taken as the receiver's DC line."""
+
+    kept: tuple[_L, ...]
+    """Lines to classify and follow (order preserved)."""
+    dropped: tuple[_L, ...]
+    """Lines at the capture centre left out (the receiver's DC offset / LO leakage)."""
+    only_dc: bool
+    """True when lines sit at the capture centre and were kept only because nothing else
+    stands above the noise (they may be the receiver's rather than the transmitter's)."""
+
+
+def split_dc_lines(
+    lines: Sequence[_L],
+    bin_hz: float,
+    *,
+    hints: Iterable[float | None] = (),
+    hint_tol_hz: float = 0.0,
+    signal_elsewhere: bool = False,
+) -> DcSplit[_L]:
+    """Leave out lines at 0 Hz (a receiver's DC line) before classifying or following lines.
+
+    A direct-conversion receiver's DC offset and LO leakage put a line at the capture
+    centre that can be stronger than the emission (DESIGN.md section 3, receiver
+    artefacts). Lines within :func:`dc_tolerance_hz` of 0 Hz are dropped unless a hint
+    (``--carrier``, a line the user names) lies within ``hint_tol_hz`` of 0 Hz, or they
+    are the only lines and ``signal_elsewhere`` is False (nothing else stands above the
+    noise): then they are kept and ``only_dc`` says so.
+
+    Parameters
+    ----------
+    lines : sequence
+        Lines with a ``frequency_hz`` attribute (Hz offset from the capture centre).
+    bin_hz : float
+        Spectrum bin width, Hz.
+    hints : iterable of float or None
+        Frequencies (Hz offset) the user pointed at; None entries are ignored.
+    hint_tol_hz : float
+        How far from 0 Hz a hint still points at the DC line, Hz.
+    signal_elsewhere : bool
+        Power stands above the noise away from 0 Hz even if no other discrete line does
+        (a continuum such as speech): the DC lines are dropped then too.
+
+    Returns
+    -------
+    DcSplit
+
+    References
+    ----------
+    Direct-conversion receivers' DC offset from LO self-mixing: B. Razavi, "Design
+    considerations for direct-conversion receivers", IEEE Trans. Circuits Syst. II 44(6),
+    1997, section III (from memory).
+    """
+    tol = dc_tolerance_hz(bin_hz)
+    at_dc = tuple(ln for ln in lines if abs(ln.frequency_hz) <= tol)
+    if not at_dc:
+        return DcSplit(tuple(lines), (), False)
+    if any(h is not None and abs(h) <= max(hint_tol_hz, tol) for h in hints):
+        return DcSplit(tuple(lines), (), False)
+    rest = tuple(ln for ln in lines if abs(ln.frequency_hz) > tol)
+    if rest or signal_elsewhere:
+        return DcSplit(rest, at_dc, False)
+    return DcSplit(tuple(lines), (), True)
 
 
 @dataclass(frozen=True)

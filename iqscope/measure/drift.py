@@ -49,6 +49,7 @@ from scipy import signal
 from scipy.signal import windows
 
 from ..dsp._allan import AllanResult, oadev
+from ..dsp._lines import split_dc_lines
 from ..dsp._spectrum import SubbandCapture, subband_decimation
 from ..dsp._tone import LinePeak, ToneEstimate, Window, estimate_rows, estimate_tones, find_lines, same_search
 from ..dsp._types import Spectrum
@@ -308,17 +309,13 @@ def plan_lines(
     tol = max(4 * spectrum.bin_hz, hint_tol_hz)
     # A line at the capture centre is usually the receiver's DC offset (DESIGN.md section 3,
     # receiver artefacts): leave it out unless it is all there is or the user points at it.
-    dc_tol = max(2 * spectrum.bin_hz, 1.0)
-    hints = [h for h in (carrier_offset_hz, line_hz) if h is not None]
-    at_dc = [ln for ln in lines if abs(ln.frequency_hz) <= dc_tol]
+    # Shared rule with the mode classification (locate.py): dsp._lines.split_dc_lines.
+    split = split_dc_lines(lines, spectrum.bin_hz, hints=(carrier_offset_hz, line_hz), hint_tol_hz=tol)
+    lines = list(split.kept)
     plan_warnings: tuple[str, ...] = ()
-    if at_dc and not any(abs(h) <= tol for h in hints):
-        rest = [ln for ln in lines if abs(ln.frequency_hz) > dc_tol]
-        if rest:
-            lines = rest
-        else:
-            plan_warnings = ("the only line sits at the capture centre: it may be the receiver's DC "
-                             "offset rather than the transmitter",)
+    if split.only_dc:
+        plan_warnings = ("the only line sits at the capture centre: it may be the receiver's DC "
+                         "offset rather than the transmitter",)
     mode = None if mode in (None, "auto") else mode
     strongest = lines[0]
     chosen: list[LinePeak]

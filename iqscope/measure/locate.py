@@ -45,6 +45,7 @@ from ..dsp._lines import (
     find_peaks,
     line_power,
     lobe_half_width_bins,
+    split_dc_lines,
 )
 from ..dsp._noise import NoiseFloor, noise_floor, spectrum_dof, sum_variance_factor
 from ..dsp._types import Spectrum
@@ -385,6 +386,21 @@ def _above_noise(spectrum: Spectrum, floor: float, h: int, sigmas: float = 5.0) 
     return np.asarray(lobe > sigmas * sig, dtype=bool)
 
 
+def _run_around(mask: npt.NDArray[np.bool_], i: int) -> npt.NDArray[np.bool_]:
+    """The contiguous run of True in ``mask`` that contains bin ``i`` (all False if ``mask[i]`` is)."""
+    out = np.zeros(mask.size, bool)
+    if not 0 <= i < mask.size or not mask[i]:
+        return out
+    lo = i
+    while lo > 0 and mask[lo - 1]:
+        lo -= 1
+    hi = i
+    while hi < mask.size - 1 and mask[hi + 1]:
+        hi += 1
+    out[lo : hi + 1] = True
+    return out
+
+
 def _dc_line(spectrum: Spectrum, floor: NoiseFloor, h: int) -> LinePower | None:
     if spectrum.psd.size < 4 * h + 8:
         return None
@@ -444,6 +460,23 @@ def locate_signal(
     usable = spectrum.n_averages > 0 and math.isfinite(floor.psd) and spectrum.psd.size >= 8
     peaks = find_peaks(spectrum, floor.psd, max_peaks=16) if usable else []
     h = lobe_half_width_bins(spectrum) if usable else 5
+    # A line at the capture centre is the receiver's DC offset unless --carrier points
+    # there or nothing else stands above the noise (same rule as drift.plan_lines); it
+    # is left out of the classification and its lobe out of the spectrum used for
+    # symmetry and power shares. It is still reported as an artefact (compute_layout).
+    dc_lobe = np.zeros(spectrum.psd.size, bool)
+    if peaks:
+        lobe_hz = (h + 0.5) * spectrum.bin_hz
+        in_lobe = np.abs(spectrum.freqs_hz) <= lobe_hz
+        above = _above_noise(spectrum, floor.psd, h)
+        # The DC line's own skirt (window sidelobes) is the run of above-noise bins around 0 Hz.
+        elsewhere = bool(np.any(above & ~(in_lobe | _run_around(above, bin_index(spectrum, 0.0)))))
+        split = split_dc_lines(
+            peaks, spectrum.bin_hz, hints=(given,), hint_tol_hz=2 * lobe_hz, signal_elsewhere=elsewhere
+        )
+        if split.dropped:
+            peaks = list(split.kept)
+            dc_lobe = in_lobe
 
     # -- explicit modes ---------------------------------------------------------------
     if mode in ("usb", "lsb"):
@@ -472,7 +505,7 @@ def locate_signal(
             return info("none" if given is None else "cw", given, "no signal above the noise floor", True)
         return info(mode, given, "no signal above the noise floor", False)
 
-    s = _excess(spectrum, floor.psd)
+    s = np.where(dc_lobe, 0.0, _excess(spectrum, floor.psd))
     total = float(s.sum()) * spectrum.bin_hz
     strongest = peaks[0] if peaks else None
 
