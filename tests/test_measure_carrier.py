@@ -154,3 +154,25 @@ def test_no_carrier_figures_for_am_and_cw(rng: np.random.Generator) -> None:
     assert an.signal.mode == "cw"
     assert "carrier_suppression_db" not in an.measurements
     assert an.measurements["frequency_offset_hz"].value == pytest.approx(1234.5, abs=0.01)
+
+
+def test_given_carrier_is_not_reported_as_measured_offset(rng: np.random.Generator) -> None:
+    """USB, --carrier 2000 and no carrier leak: the offset is not the input echoed back.
+
+    Closed form: a single tone at f0 + 1000.37 Hz (f0 = 2000 Hz) is an SSB signal with a
+    1000.37 Hz audio tone and no carrier. Without --tone nothing measures the carrier, so
+    the figure is null with the reason; with --tone 1000 the drift provider measures it
+    from the tone line: 2000.37 Hz, not the 2000.0 given (tolerance 0.05 Hz: a line 66 dB
+    above the noise in 1.4 s, Rife & Boorstyn 1974 CRLB is micro-hertz; margin for the
+    block tracker).
+    """
+    t = np.arange(1 << 16) / FS
+    x = 0.3 * np.exp(2j * np.pi * 3000.37 * t) + _noise(rng, t.size, 1e-8)
+    an = analyse(ArrayRecording(x, FS), AnalysisRequest(mode="usb", carrier_hz=2000.0))
+    off = an.measurements["frequency_offset_hz"]
+    assert off.value is None and not off.limited_by_noise
+    assert "not measured" in off.note and "--carrier" in off.note
+    an = analyse(ArrayRecording(x, FS), AnalysisRequest(mode="usb", carrier_hz=2000.0, tone_hz=1000.0))
+    off = an.measurements["frequency_offset_hz"]
+    assert off.value == pytest.approx(2000.37, abs=0.05)
+    assert off.value != 2000.0

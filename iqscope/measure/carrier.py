@@ -180,7 +180,19 @@ def _offset(ctx: AnalysisContext, lay: Layout) -> Measurement:
                 note=f"residual carrier line near the --carrier value (power centroid of its lobe), {clock}",
                 details=details,
             )
-        return Measurement(value=f0, unit="Hz", uncertainty=None, note=f"as given with --carrier, not measured", details=details)
+        # The --carrier value is an input, not a measurement: report a null so the drift
+        # provider's measured offset (a line it follows) fills the key in the pipeline's
+        # merge ("a value beats a null"); the value given stays in the details.
+        return Measurement(
+            value=None,
+            unit="Hz",
+            note=(
+                f"not measured: no carrier line near --carrier ({f0:.2f} Hz) stands above the noise; "
+                "the --carrier value is an input, not a measurement (the drift figures measure the offset "
+                "from a line they follow; for SSB give --tone)"
+            ),
+            details=dict(details, carrier_given_hz=f0),
+        )
     tones = lay.tone_lines
     if lay.mode in ("usb", "lsb") and tones and tones[0].detected:
         s = tones[0].frequency_sigma_hz
