@@ -103,6 +103,9 @@ def test_carrier_below_noise_is_a_bound(rng: np.random.Generator) -> None:
     assert m.value is not None and m.value < 150.0  # the bound never claims more than the truth
     assert m.value > 60.0
     assert "noise" in m.note
+    # Review finding 5: an undetected carrier's note must not name the searched bin as a line.
+    assert "no carrier line detected near 2345.60 Hz" in m.note
+    assert "residual carrier line at" not in m.note
 
 
 def test_carrier_suppression_sigma_covers_68_percent() -> None:

@@ -106,10 +106,12 @@ def carrier_figures(ctx: AnalysisContext) -> FigureSet:
     if not lay.has_signal or not sb.detected or sb.power <= 0:
         out.measurements["carrier_suppression_db"] = failed("dB", "no sideband power above the noise floor")
     else:
-        out.measurements["carrier_suppression_db"] = _ratio_figure(
-            sb.power, sb.sigma, car, f"{which} over the residual carrier line at {car.frequency_hz:.2f} Hz" + dc_note,
-            mode,
-        )
+        if car.detected:
+            what = f"{which} over the residual carrier line at {car.frequency_hz:.2f} Hz"
+        else:
+            # car.frequency_hz is then only the bin searched, not a line's frequency.
+            what = f"{which} over the residual carrier; no carrier line detected near {lay.f0:.2f} Hz"
+        out.measurements["carrier_suppression_db"] = _ratio_figure(sb.power, sb.sigma, car, what + dc_note, mode)
     pep = ctx.peak_power
     if not pep > 0:
         out.measurements["carrier_below_pep_db"] = failed("dB", "no samples: no peak envelope power")
@@ -157,8 +159,8 @@ def _ratio_figure(num: float, num_sigma: float, car: LinePower, what: str, mode:
         limited_by_noise=True,
         bound="lower",
         note=(
-            f"{what}: the carrier is not detectable above the noise; the value is the bound the noise floor "
-            "allows (carrier below its 97.7 % upper limit)"
+            f"{what}: the carrier is not detectable above the noise; the value is the bound from the noise "
+            "in its main lobe (carrier below its 97.7 % upper limit)"
         ),
         details={"carrier_upper_bound_dbfs": 10 * math.log10(bound)},
     )
