@@ -10,32 +10,16 @@ from __future__ import annotations
 
 import argparse
 import json
-import math
 import sys
 from typing import Any
 
 from ..errors import UsageError
+from ._options import add_input_options, check_format, finite_number
 
 __all__ = ["register", "run"]
 
 #: Largest magnitude accepted for the dB and dBm options (far beyond any real chain).
 MAX_DB = 1000.0
-
-
-def _hz(text: str) -> float:
-    from ._inspect import parse_hz
-
-    return parse_hz(text)
-
-
-def _finite(text: str) -> float:
-    try:
-        value = float(text)
-    except ValueError:
-        raise argparse.ArgumentTypeError(f"{text!r} is not a number") from None
-    if not math.isfinite(value):
-        raise argparse.ArgumentTypeError(f"{text!r} is not a finite number")
-    return value
 
 
 def register(subparsers: Any) -> None:
@@ -52,20 +36,18 @@ def register(subparsers: Any) -> None:
         "receiver, give its level there and the chain's attenuation with --attenuation-db.",
     )
     p.add_argument("reference", help="recording of the reference (SigMF, WAV, raw, HDF5)")
-    p.add_argument("--level-dbm", metavar="X", type=_finite, required=True,
+    p.add_argument("--level-dbm", metavar="X", type=finite_number, required=True,
                    help="the reference's power where it was fed in, dBm")
-    p.add_argument("--attenuation-db", metavar="A", type=_finite, default=0.0,
+    p.add_argument("--attenuation-db", metavar="A", type=finite_number, default=0.0,
                    help="attenuation between the transmitter's output and the point where the "
                    "reference was fed in, dB (default 0)")
-    p.add_argument("--level-uncertainty-db", metavar="U", type=_finite, default=0.0,
+    p.add_argument("--level-uncertainty-db", metavar="U", type=finite_number, default=0.0,
                    help="1-sigma accuracy of the reference level, dB (from its datasheet; "
                    "default 0: only the measurement's own uncertainty is counted)")
     p.add_argument("-o", "--output", metavar="FILE", required=True, help="calibration file to write (JSON)")
     p.add_argument("--force", action="store_true", help="overwrite an existing calibration file")
-    p.add_argument("--format", metavar="F", help="reader or raw datatype (as for grade)")
-    p.add_argument("--rate", metavar="HZ", type=_hz, help="sample rate, Hz (overrides the file)")
-    p.add_argument("--center", metavar="HZ", type=_hz, help="centre frequency, Hz (overrides the file)")
     p.add_argument("--json", action="store_true", help="print the calibration as JSON on stdout")
+    add_input_options(p)
     p.set_defaults(func=run)
 
 
@@ -75,6 +57,7 @@ def run(args: argparse.Namespace) -> int:
     from ..io._atomic import check_can_write
     from ..measure.power import make_calibration, save_calibration
 
+    check_format(args.format)
     if args.attenuation_db < 0:
         raise UsageError("--attenuation-db must be >= 0 (an attenuation, not a gain)")
     if args.level_uncertainty_db < 0:

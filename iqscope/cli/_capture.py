@@ -16,14 +16,9 @@ from collections.abc import Callable, Iterator
 from typing import Any
 
 from ..errors import EXIT_INTERRUPTED, CaptureError, UsageError
+from ._options import MODE_CHOICES, hz, positive_hz
 
 __all__ = ["register", "run_capture", "run_devices", "grade_argv"]
-
-
-def _hz(text: str) -> float:
-    from ._inspect import parse_hz
-
-    return parse_hz(text)
 
 
 def _number(kind: str, *, positive: bool = False, nonneg: bool = False) -> Callable[[str], float]:
@@ -58,10 +53,10 @@ def register(subparsers: Any) -> None:
     p.add_argument("--device", metavar="ARGS", default="",
                    help="SoapySDR device arguments, e.g. 'driver=NAME,serial=X' (see 'iqscope "
                    "devices'; default: the first receiver found)")
-    p.add_argument("--freq", metavar="HZ", type=_hz, required=True,
+    p.add_argument("--freq", metavar="HZ", type=hz, required=True,
                    help="receiver centre frequency, Hz (14.1M, 7100k ...); tune a few kHz away "
                    "from the signal so it does not sit on the receiver's DC offset")
-    p.add_argument("--rate", metavar="HZ", type=_hz, required=True, help="sample rate, Hz")
+    p.add_argument("--rate", metavar="HZ", type=positive_hz, required=True, help="sample rate, Hz")
     p.add_argument("--seconds", metavar="N", type=_number("seconds", positive=True),
                    required=True, help="length of the capture, s")
     p.add_argument("-o", "--output", metavar="FILE", required=True,
@@ -88,7 +83,8 @@ def register(subparsers: Any) -> None:
     p.add_argument("--force", action="store_true", help="overwrite an existing recording")
     g = p.add_argument_group("grading after the capture")
     g.add_argument("--grade", action="store_true", help="grade the recording when it is written")
-    g.add_argument("--mode", metavar="MODE", help="passed to grade: auto, cw, am, dsb, usb, lsb, two-tone")
+    g.add_argument("--mode", metavar="MODE", choices=MODE_CHOICES,
+                   help="passed to grade: " + ", ".join(MODE_CHOICES))
     g.add_argument("--limits", metavar="FILE|NAME", help="passed to grade: limits profile")
     g.add_argument("--calibration", metavar="FILE",
                    help="passed to grade: calibration file from 'iqscope calibrate' (power in dBm, W)")

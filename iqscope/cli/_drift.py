@@ -9,70 +9,38 @@ existing file without ``--force``).
 from __future__ import annotations
 
 import argparse
-import math
 import sys
 from pathlib import Path
 from typing import Any
 
-from ..errors import UsageError
+from ._options import MODE_CHOICES, add_input_options, check_format, hz, positive_hz, positive_seconds
 
-__all__ = ["register", "run", "add_tracking_options", "positive_seconds", "frequency"]
-
-
-def frequency(text: str) -> float:
-    """argparse type: a finite frequency in Hz (``48k``, ``14.1M`` accepted)."""
-    from ._inspect import parse_hz
-
-    value = parse_hz(text)
-    if not math.isfinite(value):
-        raise argparse.ArgumentTypeError(f"{text!r} is not a finite frequency")
-    return value
-
-
-def _positive_hz(text: str) -> float:
-    value = frequency(text)
-    if value <= 0:
-        raise argparse.ArgumentTypeError(f"{text!r} must be above 0 Hz")
-    return value
-
-
-def positive_seconds(text: str) -> float:
-    """argparse type: a positive, finite number of seconds."""
-    try:
-        value = float(text)
-    except ValueError:
-        raise argparse.ArgumentTypeError(f"{text!r} is not a number of seconds") from None
-    if not math.isfinite(value) or value <= 0:
-        raise argparse.ArgumentTypeError(f"{text!r} must be a positive number of seconds")
-    return value
+__all__ = ["register", "run", "add_tracking_options"]
 
 
 def add_tracking_options(p: argparse.ArgumentParser) -> None:
     """Options shared by ``drift`` and ``watch``: what to follow and how."""
     s = p.add_argument_group("what to follow")
-    s.add_argument("--mode", choices=("auto", "cw", "am", "dsb", "usb", "lsb", "two-tone"), default="auto",
+    s.add_argument("--mode", choices=MODE_CHOICES, default="auto",
                    help="emission mode (default auto: the strongest line, or an equal pair averaged)")
-    s.add_argument("--carrier", metavar="HZ", type=frequency,
+    s.add_argument("--carrier", metavar="HZ", type=hz,
                    help="nominal carrier: within +/- fs/2 an offset from the capture centre, else absolute "
                    "RF; frequency_offset_hz is measured from it")
-    s.add_argument("--tone", metavar="HZ", type=_positive_hz, help="SSB test tone's audio frequency")
-    s.add_argument("--line", metavar="HZ", type=frequency, help="follow the line nearest this frequency")
-    s.add_argument("--reference", metavar="HZ", type=frequency,
+    s.add_argument("--tone", metavar="HZ", type=positive_hz, help="SSB test tone's audio frequency")
+    s.add_argument("--line", metavar="HZ", type=hz, help="follow the line nearest this frequency")
+    s.add_argument("--reference", metavar="HZ", type=hz,
                    help="a stable line in the same capture: drift is reported relative to it "
                    "(removes the receiver's own drift); absolute RF also corrects the offset")
     t = p.add_argument_group("tracking")
-    t.add_argument("--block", metavar="S", type=positive_seconds, help="block length, s (default: from the SNR)")
-    t.add_argument("--span", metavar="HZ", type=_positive_hz,
+    t.add_argument("--block", metavar="S", type=positive_seconds, help="block length, s (default: from the SNR); at least 64 samples and, for a "
+                   "finished recording, no longer than it")
+    t.add_argument("--span", metavar="HZ", type=positive_hz,
                    help="search +/- this around the last seen frequency (default: 20 Hz or 8 bins)")
     t.add_argument("--window", metavar="S", type=positive_seconds, default=120.0,
-                   help="window for the worst excursion, s (default 120)")
-    t.add_argument("--settle-band", metavar="HZ", type=_positive_hz, default=1.0,
+                   help="window for the worst excursion, s (default 120); at least two blocks")
+    t.add_argument("--settle-band", metavar="HZ", type=positive_hz, default=1.0,
                    help="settling band half-width, Hz (default 1)")
-    r = p.add_argument_group("reading the input")
-    r.add_argument("--format", metavar="F", help="reader (sigmf, wav, hdf5, raw), raw datatype (cf32, ci16, ci8, cu8 ...) "
-                   "or file extension (cs16, sc8, cfile ...)")
-    r.add_argument("--rate", metavar="HZ", type=_positive_hz, help="sample rate, Hz (overrides the file)")
-    r.add_argument("--center", metavar="HZ", type=frequency, help="centre frequency, Hz (overrides the file)")
+    add_input_options(p)
 
 
 def register(subparsers: Any) -> None:
@@ -98,19 +66,14 @@ def register(subparsers: Any) -> None:
 
 
 def _plot_targets(args: argparse.Namespace) -> list[Path]:
-    from ..io._atomic import check_can_write
     from ..report._drift import DRIFT_PLOT_NAMES
     from ._grade import output_stem
+    from ._options import check_plot_folder
 
-    folder = Path(args.plot)
-    if folder.exists() and not folder.is_dir():
-        raise UsageError(f"--plot needs a folder, but {folder} is a file")
     stem = output_stem(args.file)
-    targets = [folder / f"{stem}-drift-{name}.png" for name in DRIFT_PLOT_NAMES]
-    if folder.is_dir():
-        for target in targets:
-            check_can_write(target, force=args.force)
-    return targets
+    names = [f"{stem}-drift-{name}.png" for name in DRIFT_PLOT_NAMES]
+    folder = check_plot_folder(args.plot, names, force=args.force)
+    return [folder / name for name in names]
 
 
 def run(args: argparse.Namespace) -> int:
@@ -121,8 +84,7 @@ def run(args: argparse.Namespace) -> int:
     from ..report._json import dumps
     from ..report._theme import is_ascii, make_console
 
-    if args.format is not None and not args.format.strip():
-        raise UsageError("--format needs a value")
+    check_format(args.format)
     targets = _plot_targets(args) if args.plot else []
     with open_recording(args.file, format=args.format, rate=args.rate, center=args.center) as rec:
         err = make_console(stderr=True)
@@ -150,8 +112,9 @@ def run(args: argparse.Namespace) -> int:
             out.print(render_drift(result, rec, ascii_only=is_ascii(out)))
         if targets:
             from ..io._atomic import atomic_write
+            from ._options import make_plot_folder
 
-            Path(args.plot).mkdir(exist_ok=True)
+            make_plot_folder(args.plot)
             pngs = drift_plots(result, rec.name)
             for target in targets:
                 name = target.stem.rsplit("-drift-", 1)[-1]

@@ -16,7 +16,6 @@ file is unusable (the others are still graded and reported).
 from __future__ import annotations
 
 import argparse
-import math
 import sys
 from dataclasses import dataclass
 from pathlib import Path
@@ -30,28 +29,16 @@ from ..errors import (
     MeasurementError,
     UsageError,
 )
+from ._options import (
+    MODE_CHOICES,
+    add_input_options,
+    check_format,
+    hz,
+    positive_hz,
+    positive_seconds,
+)
 
 __all__ = ["register", "run", "MODE_CHOICES", "output_stem"]
-
-#: ``--mode`` choices (DESIGN.md section 4, contract).
-MODE_CHOICES = ("auto", "cw", "am", "dsb", "usb", "lsb", "two-tone")
-
-
-def _hz(text: str) -> float:
-    from ._inspect import parse_hz
-
-    value = parse_hz(text)
-    if not math.isfinite(value):
-        raise argparse.ArgumentTypeError(f"{text!r} is not a finite frequency")
-    return value
-
-
-def _positive_hz(text: str) -> float:
-    value = _hz(text)
-    if value <= 0:
-        raise argparse.ArgumentTypeError(f"{text!r} must be above 0 Hz")
-    return value
-
 
 #: Finest ``--resolution`` accepted, Hz: finer is no spectrum any recording gives (the
 #: pipeline clamps the FFT to 2^22 points anyway), and fs / 1e-300 overflowed its planner.
@@ -59,19 +46,9 @@ MIN_RESOLUTION_HZ = 1e-6
 
 
 def _resolution(text: str) -> float:
-    value = _positive_hz(text)
+    value = positive_hz(text)
     if value < MIN_RESOLUTION_HZ:
         raise argparse.ArgumentTypeError(f"{text!r} is finer than {MIN_RESOLUTION_HZ:g} Hz")
-    return value
-
-
-def _seconds(text: str) -> float:
-    try:
-        value = float(text)
-    except ValueError:
-        raise argparse.ArgumentTypeError(f"{text!r} is not a number of seconds") from None
-    if not math.isfinite(value) or value <= 0:
-        raise argparse.ArgumentTypeError(f"{text!r} must be a positive number of seconds")
     return value
 
 
@@ -94,13 +71,13 @@ def register(subparsers: Any) -> None:
     s.add_argument(
         "--carrier",
         metavar="HZ",
-        type=_hz,
+        type=hz,
         help="carrier frequency: within +/- fs/2 an offset from the capture centre, else absolute RF",
     )
-    s.add_argument("--tone", metavar="HZ", type=_positive_hz, help="the test tone's audio frequency (SSB)")
+    s.add_argument("--tone", metavar="HZ", type=positive_hz, help="the test tone's audio frequency (SSB)")
     s.add_argument("--resolution", metavar="HZ", type=_resolution, help="spectrum bin spacing (default: from the signal)")
-    s.add_argument("--reference", metavar="HZ", type=_hz, help="a stable reference line for drift (offset or absolute)")
-    s.add_argument("--drift-window", metavar="S", type=_seconds, default=120.0, help="window for the worst drift excursion, s (default 120)")
+    s.add_argument("--reference", metavar="HZ", type=hz, help="a stable reference line for drift (offset or absolute)")
+    s.add_argument("--drift-window", metavar="S", type=positive_seconds, default=120.0, help="window for the worst drift excursion, s (default 120)")
     s.add_argument("--calibration", metavar="FILE", help="calibration from 'iqscope calibrate' (power in dBm and W)")
     g = p.add_argument_group("limits and output")
     g.add_argument(
@@ -116,10 +93,7 @@ def register(subparsers: Any) -> None:
     g.add_argument("--annotate", action="store_true", help="write STEM.graded.sigmf-meta beside each SigMF input")
     g.add_argument("--force", action="store_true", help="overwrite existing output files")
     g.add_argument("--quiet", "-q", action="store_true", help="no progress; text output reduced to one line per file")
-    r = p.add_argument_group("reading the input")
-    r.add_argument("--format", metavar="F", help="reader (sigmf, wav, hdf5, raw) or raw datatype (cf32, ci16, ci8, cu8 ...)")
-    r.add_argument("--rate", metavar="HZ", type=_positive_hz, help="sample rate, Hz (overrides the file)")
-    r.add_argument("--center", metavar="HZ", type=_hz, help="centre frequency, Hz (overrides the file)")
+    add_input_options(p, several=True)
     p.set_defaults(func=run)
 
 
@@ -186,6 +160,7 @@ def run(args: argparse.Namespace) -> int:
     from ..measure._context import AnalysisRequest
     from ..report._theme import make_console
 
+    check_format(args.format)
     limits = combine_profiles([load_limits(spec) for spec in args.limits]) if args.limits else None
     stems = _stems(list(args.files))
     _check_outputs(args, stems)

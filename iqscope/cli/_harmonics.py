@@ -10,6 +10,7 @@ from pathlib import Path
 from typing import Any
 
 from ..errors import EXIT_FAIL, EXIT_OK, EXIT_WARN, UsageError
+from ._options import add_input_options, check_format, positive_number
 
 __all__ = ["register", "run"]
 
@@ -27,16 +28,6 @@ too high to show it), 2 some harmonic exceeds a limit, 3/4/5 as for every comman
 """
 
 
-def _positive(text: str) -> float:
-    try:
-        v = float(text)
-    except ValueError:
-        raise argparse.ArgumentTypeError(f"{text!r} is not a number") from None
-    if not (math.isfinite(v) and v > 0):
-        raise argparse.ArgumentTypeError(f"{text!r} must be a positive number")
-    return v
-
-
 def register(subparsers: Any) -> None:
     """Add the ``harmonics`` command."""
     p = subparsers.add_parser(
@@ -51,7 +42,7 @@ def register(subparsers: Any) -> None:
     p.add_argument("files", nargs="+", metavar="FILE", help="recordings; the lowest centre frequency is the fundamental")
     p.add_argument("--fundamental", metavar="FILE", help="the fundamental's recording (default: lowest centre frequency)")
     p.add_argument("--calibration", metavar="FILE", help="calibration from 'iqscope calibrate' (levels in dBm, PEP in W)")
-    p.add_argument("--pep-w", metavar="W", type=_positive, help="PEP in watts for RR Appendix 3 when not calibrated")
+    p.add_argument("--pep-w", metavar="W", type=positive_number, help="PEP in watts for RR Appendix 3 when not calibrated")
     p.add_argument(
         "--step",
         nargs=2,
@@ -63,9 +54,7 @@ def register(subparsers: Any) -> None:
     p.add_argument("--json", action="store_true", help="print one JSON object on stdout")
     p.add_argument("--plot", metavar="DIR", help="write harmonics.png into DIR")
     p.add_argument("--force", action="store_true", help="overwrite existing output files")
-    r = p.add_argument_group("reading the input")
-    r.add_argument("--format", metavar="F", help="reader (sigmf, wav, hdf5, raw) or raw datatype")
-    r.add_argument("--rate", metavar="HZ", type=_positive, help="sample rate, Hz (overrides the files)")
+    add_input_options(p, center=False, several=True)
     p.set_defaults(func=run)
 
 
@@ -84,6 +73,7 @@ def run(args: argparse.Namespace) -> int:
     """Measure every recording, build the table, print it, return the exit status."""
     from ..measure.harmonics import harmonics_table
 
+    check_format(args.format)
     files: list[str] = []
     seen: set[str] = set()
     for f in ([args.fundamental] if args.fundamental else []) + list(args.files):

@@ -5,13 +5,12 @@ from __future__ import annotations
 import argparse
 import json
 import math
-import re
 import sys
 from typing import Any
 
 from ..dsp._levels import Levels, LevelAccumulator
-from ..errors import UsageError
 from ..io import Recording, open_recording
+from ._options import add_input_options, check_format, parse_hz
 
 __all__ = ["register", "run", "inspect_data", "parse_hz", "CHUNK_SAMPLES", "PROGRESS_MIN_SAMPLES"]
 
@@ -19,19 +18,6 @@ __all__ = ["register", "run", "inspect_data", "parse_hz", "CHUNK_SAMPLES", "PROG
 CHUNK_SAMPLES = 1 << 18
 #: Recordings at least this long get a progress bar (when stderr is a terminal).
 PROGRESS_MIN_SAMPLES = 1 << 24
-
-_SI = {"": 1.0, "k": 1e3, "m": 1e6, "M": 1e6, "g": 1e9, "G": 1e9}
-_HZ_RE = re.compile(r"^\s*([-+]?(?:\d+\.?\d*|\.\d+)(?:[eE][-+]?\d+)?)\s*([kMmGg]?)(?:[Hh][Zz])?\s*$")
-
-
-def parse_hz(text: str) -> float:
-    """Parse ``48000``, ``48e3``, ``48k``, ``14.1M``, ``14.1 MHz`` to Hz (for argparse)."""
-    m = _HZ_RE.match(text)
-    if m is None:
-        if text.strip().lower() in ("nan", "inf", "-inf", "+inf", "infinity"):
-            return float(text)  # passed on, refused with the input's own message
-        raise argparse.ArgumentTypeError(f"{text!r} is not a frequency in Hz (e.g. 48000, 48k, 14.1M)")
-    return float(m.group(1)) * _SI[m.group(2)]
 
 
 def register(subparsers: Any) -> None:
@@ -44,10 +30,8 @@ def register(subparsers: Any) -> None:
         "levels (dBFS, full scale |x| = 1). Reads the file once, in blocks.",
     )
     p.add_argument("file", help="recording: .sigmf-meta/.sigmf, .wav, .h5[:/dataset], or a raw file")
-    p.add_argument("--format", metavar="F", help="reader (sigmf, wav, hdf5, raw) or a raw datatype (cf32, ci16, ci8, cu8 ...)")
-    p.add_argument("--rate", metavar="HZ", type=parse_hz, help="sample rate, Hz (overrides the file)")
-    p.add_argument("--center", metavar="HZ", type=parse_hz, help="centre frequency, Hz (overrides the file)")
     p.add_argument("--json", action="store_true", help="print one JSON object on stdout and nothing else")
+    add_input_options(p)
     p.set_defaults(func=run)
 
 
@@ -85,9 +69,7 @@ def run(args: argparse.Namespace) -> int:
     """Open, measure levels in one pass, print a table or one JSON object."""
     from ..report._inspect import progress_bar, render_inspect
 
-    if args.format is not None and not args.format.strip():
-        raise UsageError("--format needs a value")
-    with open_recording(args.file, format=args.format, rate=args.rate, center=args.center) as rec:
+    with open_recording(args.file, format=check_format(args.format), rate=args.rate, center=args.center) as rec:
         acc = LevelAccumulator(rec.clip_level)
         show = sys.stderr.isatty() and rec.n_samples >= PROGRESS_MIN_SAMPLES
         with progress_bar(rec.n_samples, enabled=show, label=rec.name) as advance:

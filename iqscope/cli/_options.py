@@ -1,18 +1,152 @@
-"""Option helpers shared by the command modules: plot folders and output checks.
+"""Option helpers shared by the command modules: argument types, the input options, plot folders.
 
 Wiring only: these check what the user named before any work starts, so a command never
-spends minutes measuring and then fails on its output.
+spends minutes measuring and then fails on its output, and every command reads the same
+option the same way (``--carrier 1k`` means 1000 Hz in each of them).
+
+Argument types (for ``type=`` in argparse; they raise
+:class:`argparse.ArgumentTypeError`, which argparse turns into a usage error):
+
+- :func:`parse_hz`: the frequency syntax only (``48000``, ``48e3``, ``48k``, ``14.1M``,
+  ``14.1 MHz``); NaN and Inf are passed on.
+- :func:`hz`: a finite frequency, any sign (an offset may be negative).
+- :func:`positive_hz`: a finite frequency above 0 Hz.
+- :func:`positive_seconds`: a finite number of seconds above 0.
+- :func:`finite_number`, :func:`positive_number`: plain numbers (dB, W ...).
+
+``--rate`` is read with :func:`parse_hz` in every command: the readers judge the value
+(:func:`iqscope.io._recording.check_sample_rate` refuses 0, negative, NaN, Inf, below
+1 mHz and above 100 GHz), so each command refuses a bad rate with the same one-line
+"sample rate" message and exit status 3, as it refuses one from a file's metadata.
 """
 
 from __future__ import annotations
 
+import argparse
+import math
+import re
 from collections.abc import Iterable
 from pathlib import Path
+from typing import Final
 
 from ..errors import OutputError, UsageError
 from ..io._atomic import check_can_write
+from ..measure.locate import MODES
 
-__all__ = ["check_plot_folder", "make_plot_folder"]
+__all__ = [
+    "MODE_CHOICES",
+    "FORMAT_HELP",
+    "parse_hz",
+    "hz",
+    "positive_hz",
+    "positive_seconds",
+    "finite_number",
+    "positive_number",
+    "add_input_options",
+    "check_format",
+    "check_plot_folder",
+    "make_plot_folder",
+]
+
+#: ``--mode`` choices: the emission modes the measurements know (DESIGN.md section 4).
+MODE_CHOICES: Final[tuple[str, ...]] = tuple(MODES)
+
+#: Help text of ``--format`` (every reading command).
+FORMAT_HELP: Final = (
+    "reader (sigmf, wav, hdf5, raw), raw datatype (cf32, ci16, ci8, cu8 ...) "
+    "or a reader's file extension (cs16, sc8, cfile, h5 ...)"
+)
+
+_SI: Final = {"": 1.0, "k": 1e3, "m": 1e6, "M": 1e6, "g": 1e9, "G": 1e9}
+_HZ_RE: Final = re.compile(r"^\s*([-+]?(?:\d+\.?\d*|\.\d+)(?:[eE][-+]?\d+)?)\s*([kMmGg]?)(?:[Hh][Zz])?\s*$")
+_NON_FINITE: Final = ("nan", "inf", "-inf", "+inf", "infinity", "-infinity", "+infinity")
+
+
+def parse_hz(text: str) -> float:
+    """Parse ``48000``, ``48e3``, ``48k``, ``14.1M``, ``14.1 MHz`` to Hz (for argparse).
+
+    ``nan`` and ``inf`` are returned as such (a caller that needs a finite value uses
+    :func:`hz`; ``--rate`` leaves them to the reader's own message).
+    """
+    m = _HZ_RE.match(text)
+    if m is None:
+        if text.strip().lower() in _NON_FINITE:
+            return float(text)  # passed on, refused with the input's own message
+        raise argparse.ArgumentTypeError(f"{text!r} is not a frequency in Hz (e.g. 48000, 48k, 14.1M)")
+    return float(m.group(1)) * _SI[m.group(2)]
+
+
+def hz(text: str) -> float:
+    """argparse type: a finite frequency in Hz, any sign (``48k``, ``14.1M`` accepted)."""
+    value = parse_hz(text)
+    if not math.isfinite(value):
+        raise argparse.ArgumentTypeError(f"{text!r} is not a finite frequency")
+    return value
+
+
+def positive_hz(text: str) -> float:
+    """argparse type: a finite frequency above 0 Hz."""
+    value = hz(text)
+    if value <= 0:
+        raise argparse.ArgumentTypeError(f"{text!r} must be above 0 Hz")
+    return value
+
+
+def positive_seconds(text: str) -> float:
+    """argparse type: a positive, finite number of seconds."""
+    try:
+        value = float(text)
+    except ValueError:
+        raise argparse.ArgumentTypeError(f"{text!r} is not a number of seconds") from None
+    if not math.isfinite(value) or value <= 0:
+        raise argparse.ArgumentTypeError(f"{text!r} must be a positive number of seconds")
+    return value
+
+
+def finite_number(text: str) -> float:
+    """argparse type: a finite number (dB, dBm ...)."""
+    try:
+        value = float(text)
+    except ValueError:
+        raise argparse.ArgumentTypeError(f"{text!r} is not a number") from None
+    if not math.isfinite(value):
+        raise argparse.ArgumentTypeError(f"{text!r} is not a finite number")
+    return value
+
+
+def positive_number(text: str) -> float:
+    """argparse type: a finite number above 0 (watts ...)."""
+    try:
+        value = float(text)
+    except ValueError:
+        raise argparse.ArgumentTypeError(f"{text!r} is not a number") from None
+    if not (math.isfinite(value) and value > 0):
+        raise argparse.ArgumentTypeError(f"{text!r} must be a positive number")
+    return value
+
+
+def add_input_options(
+    parser: argparse.ArgumentParser, *, center: bool = True, several: bool = False
+) -> argparse._ArgumentGroup:
+    """Add the "reading the input" group: ``--format``, ``--rate`` and (``center``) ``--center``.
+
+    ``several`` words the help for commands reading several files. Call
+    :func:`check_format` on the parsed namespace before opening anything.
+    """
+    what = "the files" if several else "the file"
+    group = parser.add_argument_group("reading the input")
+    group.add_argument("--format", metavar="F", help=FORMAT_HELP)
+    group.add_argument("--rate", metavar="HZ", type=parse_hz, help=f"sample rate, Hz (overrides {what})")
+    if center:
+        group.add_argument("--center", metavar="HZ", type=hz, help=f"centre frequency, Hz (overrides {what})")
+    return group
+
+
+def check_format(fmt: str | None) -> str | None:
+    """Refuse an empty ``--format`` (``--format ""``) with a usage error; return it unchanged."""
+    if fmt is not None and not fmt.strip():
+        raise UsageError("--format needs a value")
+    return fmt
 
 
 def check_plot_folder(folder: str | Path, files: Iterable[str], *, force: bool) -> Path:

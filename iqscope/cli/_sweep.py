@@ -11,6 +11,7 @@ from pathlib import Path
 from typing import Any
 
 from ..errors import EXIT_OK, UsageError
+from ._options import MODE_CHOICES, add_input_options, check_format, finite_number, hz, positive_hz
 
 __all__ = ["register", "run", "DRIVE_KEY", "parse_drives"]
 
@@ -28,16 +29,6 @@ Shown: output (per tone for two-tone) against drive and the 1 dB compression poi
 IMD3 against drive and the drive where it crosses --imd3-limit (dB PEP), the third-order
 intercept OIP3 = P_tone + (P_tone - P_IM3)/2, carrier and opposite-sideband suppression.
 """
-
-
-def _float(text: str) -> float:
-    try:
-        v = float(text)
-    except ValueError:
-        raise argparse.ArgumentTypeError(f"{text!r} is not a number") from None
-    if not math.isfinite(v):
-        raise argparse.ArgumentTypeError(f"{text!r} is not a finite number")
-    return v
 
 
 def parse_drives(text: str, scale: str = "db") -> list[float]:
@@ -90,19 +81,16 @@ def register(subparsers: Any) -> None:
         help="how --drive values are given (default: dB)",
     )
     s = p.add_argument_group("signal")
-    s.add_argument("--mode", default="two-tone", help="emission mode for every file (default: two-tone)")
-    s.add_argument("--carrier", metavar="HZ", type=_float, help="carrier offset from the capture centre, or absolute RF, Hz")
-    s.add_argument("--tone", metavar="HZ", type=_float, help="test tone's audio frequency (SSB), Hz")
+    s.add_argument("--mode", choices=MODE_CHOICES, default="two-tone", help="emission mode for every file (default: two-tone)")
+    s.add_argument("--carrier", metavar="HZ", type=hz, help="carrier offset from the capture centre, or absolute RF, Hz")
+    s.add_argument("--tone", metavar="HZ", type=positive_hz, help="test tone's audio frequency (SSB), Hz")
     s.add_argument("--calibration", metavar="FILE", help="calibration from 'iqscope calibrate' (output in dBm)")
-    s.add_argument("--imd3-limit", metavar="DB", type=_float, default=None, help="IMD3 limit, dB re PEP (default -30)")
+    s.add_argument("--imd3-limit", metavar="DB", type=finite_number, default=None, help="IMD3 limit, dB re PEP (default -30)")
     o = p.add_argument_group("output")
     o.add_argument("--json", action="store_true", help="print one JSON object on stdout")
     o.add_argument("--plot", metavar="DIR", help="write sweep.png into DIR")
     o.add_argument("--force", action="store_true", help="overwrite existing output files")
-    r = p.add_argument_group("reading the input")
-    r.add_argument("--format", metavar="F", help="reader (sigmf, wav, hdf5, raw) or raw datatype")
-    r.add_argument("--rate", metavar="HZ", type=_float, help="sample rate, Hz (overrides the files)")
-    r.add_argument("--center", metavar="HZ", type=_float, help="centre frequency, Hz (overrides the files)")
+    add_input_options(p, several=True)
     p.set_defaults(func=run)
 
 
@@ -122,6 +110,7 @@ def run(args: argparse.Namespace) -> int:
     from ..measure.pipeline import analyse
     from ..measure.sweep import DEFAULT_IMD3_LIMIT_DB_PEP, analyse_sweep, point_from_analysis
 
+    check_format(args.format)
     files = list(args.files)
     if len(files) < 2:
         raise UsageError("a sweep needs at least two recordings (one per drive level)")

@@ -33,7 +33,7 @@ from ..synth import (
     write_audio,
     write_signal,
 )
-from ._inspect import parse_hz
+from ._options import parse_hz
 
 __all__ = ["register", "run", "build_spec", "KINDS"]
 

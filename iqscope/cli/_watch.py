@@ -21,7 +21,7 @@ from dataclasses import dataclass, replace
 from pathlib import Path
 from typing import Any
 
-from ..errors import InputError, MeasurementError, UsageError
+from ..errors import InputError, MeasurementError
 
 __all__ = ["register", "run", "watch", "WatchOutcome"]
 
@@ -35,7 +35,8 @@ READ_SAMPLES = 1 << 20
 
 def register(subparsers: Any) -> None:
     """Add the ``watch`` command."""
-    from ._drift import add_tracking_options, positive_seconds
+    from ._drift import add_tracking_options
+    from ._options import positive_seconds
 
     p = subparsers.add_parser(
         "watch",
@@ -185,8 +186,9 @@ def run(args: argparse.Namespace) -> int:
     from ..report._json import dumps
     from ..report._theme import is_ascii, make_console
 
-    if args.format is not None and not args.format.strip():
-        raise UsageError("--format needs a value")
+    from ._options import check_format
+
+    check_format(args.format)
     out = make_console()
     live_ok = sys.stdout.isatty() and not args.no_live and not args.json
     title = f"iqscope watch {Path(args.file).name}"
