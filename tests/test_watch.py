@@ -233,3 +233,28 @@ def test_watch_panel_renders() -> None:
     assert "+3.250 Hz" in text and "+1.234 Hz/min" in text
     assert "42.7 dB" in text
     assert "-10.5 dBFS" in text
+
+
+def test_live_watch_shows_waiting_then_the_panel() -> None:
+    """report._drift.live_watch: the display cli/_watch.py drives (rich stays in report/).
+    Expected text: the panel's own rendering (test_watch_panel_renders) and the waiting line."""
+    from rich.console import Console
+
+    from iqscope.report._drift import live_watch
+    from iqscope.report._theme import THEME
+
+    status = WatchStatus(
+        elapsed_s=75.0, n_blocks=300, n_valid=298, level_dbfs=-10.5, snr_db=25.0, offset_hz=3.25,
+        sigma_hz=0.01, drift_hz_per_min=1.234, drift_se_hz_per_min=0.01, peak_to_peak_hz=1.5,
+        carrier_suppression_db=42.7, carrier_limited_by_noise=False, what="the carrier at 700.0 Hz",
+    )
+    buf = io.StringIO()
+    console = Console(file=buf, width=80, color_system=None, force_terminal=True, theme=THEME)
+    with live_watch(console, "iqscope watch cap.cf32") as show:
+        show(None, "waiting for data")
+        console.file.flush()
+        waiting = buf.getvalue()
+        show(status, "following")
+    text = buf.getvalue()
+    assert "waiting for data" in waiting
+    assert "iqscope watch cap.cf32" in text and "+3.250 Hz" in text and "following" in text

@@ -182,10 +182,9 @@ def watch(
 
 def run(args: argparse.Namespace) -> int:
     """Follow the file with a live display, then print the summary."""
-    from ..report._drift import drift_document, render_drift, watch_panel
+    from ..report._drift import drift_document, live_watch, render_drift
     from ..report._json import dumps
     from ..report._theme import is_ascii, make_console
-
     from ._options import check_format
 
     check_format(args.format)
@@ -193,18 +192,7 @@ def run(args: argparse.Namespace) -> int:
     live_ok = sys.stdout.isatty() and not args.no_live and not args.json
     title = f"iqscope watch {Path(args.file).name}"
     if live_ok:
-        from rich.live import Live
-        from rich.text import Text
-
-        with Live(Text("waiting for data ...", style="iqscope.muted"), console=out,
-                  refresh_per_second=4, transient=True) as live:
-
-            def show(status: Any, state: str) -> None:
-                if status is None:
-                    live.update(Text(f"{title}: {state} ...", style="iqscope.muted"))
-                else:
-                    live.update(watch_panel(status, title=title, state=state))
-
+        with live_watch(out, title) as show:
             outcome = watch(args, on_status=show)
     else:
         outcome = watch(args)

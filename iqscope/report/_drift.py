@@ -1,4 +1,4 @@
-"""Drift reports: text (rich), JSON document, PNG plots, live watch panel, progress bar.
+"""Drift reports: text (rich), JSON document, PNG plots, live watch display, progress bar.
 
 Renderers only draw what :mod:`iqscope.measure.drift` computed (a
 :class:`~iqscope.measure.drift.DriftResult` or a
@@ -17,6 +17,7 @@ import numpy as np
 from matplotlib.backends.backend_agg import FigureCanvasAgg
 from matplotlib.figure import Figure
 from rich.console import Console, Group, RenderableType
+from rich.live import Live
 from rich.panel import Panel
 from rich.progress import BarColumn, Progress, TextColumn, TimeRemainingColumn
 from rich.table import Table
@@ -35,6 +36,7 @@ __all__ = [
     "render_drift",
     "drift_plots",
     "watch_panel",
+    "live_watch",
     "progress_reporter",
 ]
 
@@ -259,6 +261,26 @@ def watch_panel(status: WatchStatus, *, title: str = "iqscope watch", state: str
             cs = f">= {math.floor(status.carrier_suppression_db):.0f} dB (noise-limited)"
         t.add_row("Carrier suppression", cs)
     return Panel(t, title=title, subtitle=state or None, title_align="left")
+
+
+@contextlib.contextmanager
+def live_watch(console: Console, title: str) -> Iterator[Callable[[WatchStatus | None, str], None]]:
+    """The live display of ``iqscope watch`` on ``console`` (transient: gone when it ends).
+
+    Yields ``show(status, state)``: with a :class:`~iqscope.measure.drift.WatchStatus` it
+    redraws :func:`watch_panel`; with ``None`` (no line chosen yet) one muted line
+    ``"TITLE: STATE ..."``.
+    """
+    waiting = Text("waiting for data ...", style="iqscope.muted")
+    with Live(waiting, console=console, refresh_per_second=4, transient=True) as live:
+
+        def show(status: WatchStatus | None, state: str) -> None:
+            if status is None:
+                live.update(Text(f"{title}: {state} ...", style="iqscope.muted"))
+            else:
+                live.update(watch_panel(status, title=title, state=state))
+
+        yield show
 
 
 @contextlib.contextmanager
