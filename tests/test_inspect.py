@@ -231,15 +231,17 @@ def test_multi_gb_file_keeps_memory_flat(tmp_path: Path) -> None:
 
 def test_progress_bar_only_when_enabled() -> None:
     """Disabled (short file, stderr not a terminal): nothing printed. Enabled on a terminal
-    console: rich draws the bar (transient, so it is cleared at the end)."""
-    from iqscope.report._inspect import progress_bar
+    console: rich draws the bar (transient, so it is cleared at the end). inspect uses the
+    one progress bar of report/_progress.py."""
+    from iqscope.report._progress import progress_reporter
 
     quiet = io.StringIO()
-    with progress_bar(100, Console(file=quiet), enabled=False) as advance:
-        advance(100)
+    with progress_reporter(Console(file=quiet), "x.wav", enabled=False) as progress:
+        assert progress is None  # the reading loop skips it
     assert quiet.getvalue() == ""
     loud = io.StringIO()
-    with progress_bar(100, Console(file=loud, force_terminal=True, width=60), enabled=True, label="x.wav") as advance:
-        advance(50)
-        advance(50)
+    with progress_reporter(Console(file=loud, force_terminal=True, width=60), "x.wav", enabled=True) as progress:
+        assert progress is not None
+        progress(50, 100)
+        progress(100, 100)
     assert "x.wav" in loud.getvalue()

@@ -133,22 +133,13 @@ def _grade_available() -> bool:
 @contextlib.contextmanager
 def _progress(total: int, enabled: bool) -> Iterator[Callable[[int, int, int], None]]:
     """A progress bar on stderr (the report layer draws it) as a capture callback."""
-    if not enabled:
-        yield lambda done, wanted, overflows: None
-        return
-    try:
-        from ..report._inspect import progress_bar
-    except ImportError:  # pragma: no cover - report layer without a progress bar
-        yield lambda done, wanted, overflows: None
-        return
-    last = [0]
-    with progress_bar(total, enabled=True, label="capturing") as advance:
+    from ..report._progress import progress_reporter
 
-        def update(done: int, wanted: int, overflows: int) -> None:
-            advance(done - last[0])
-            last[0] = done
-
-        yield update
+    with progress_reporter(None, "capturing", enabled=enabled) as progress:
+        if progress is None:
+            yield lambda done, wanted, overflows: None
+        else:
+            yield lambda done, wanted, overflows: progress(done, total)
 
 
 def _check_safety(args: argparse.Namespace) -> None:

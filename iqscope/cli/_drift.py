@@ -80,7 +80,8 @@ def run(args: argparse.Namespace) -> int:
     """Open, track, figure, render."""
     from ..io import open_recording
     from ..measure.drift import analyse_drift
-    from ..report._drift import drift_document, drift_plots, progress_reporter, render_drift
+    from ..report._drift import drift_document, drift_plots, render_drift
+    from ..report._progress import progress_reporter
     from ..report._json import dumps
     from ..report._theme import is_ascii, make_console
 
@@ -89,7 +90,7 @@ def run(args: argparse.Namespace) -> int:
     with open_recording(args.file, format=args.format, rate=args.rate, center=args.center) as rec:
         err = make_console(stderr=True)
         show = sys.stderr.isatty() and not args.quiet
-        with progress_reporter(err, enabled=show, label=f"tracking {rec.name}") as progress:
+        with progress_reporter(err, f"tracking {rec.name}", enabled=show) as progress:
             result = analyse_drift(
                 rec,
                 mode=args.mode,

@@ -183,7 +183,7 @@ def run(args: argparse.Namespace) -> int:
             with open_recording(path, format=args.format, rate=args.rate, center=args.center) as rec:
                 if args.annotate and rec.format != "sigmf":
                     raise UsageError(f"--annotate needs a SigMF recording; {path} is {rec.format}")
-                from ..report._text import progress_reporter
+                from ..report._progress import progress_reporter
 
                 with progress_reporter(err, f"grading {Path(path).name}", enabled=show_progress) as progress:
                     request = AnalysisRequest(

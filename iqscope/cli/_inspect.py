@@ -67,15 +67,19 @@ def inspect_data(rec: Recording, levels: Levels) -> dict[str, Any]:
 
 def run(args: argparse.Namespace) -> int:
     """Open, measure levels in one pass, print a table or one JSON object."""
-    from ..report._inspect import progress_bar, render_inspect
+    from ..report._inspect import render_inspect
+    from ..report._progress import progress_reporter
 
     with open_recording(args.file, format=check_format(args.format), rate=args.rate, center=args.center) as rec:
         acc = LevelAccumulator(rec.clip_level)
         show = sys.stderr.isatty() and rec.n_samples >= PROGRESS_MIN_SAMPLES
-        with progress_bar(rec.n_samples, enabled=show, label=rec.name) as advance:
+        with progress_reporter(None, rec.name, enabled=show) as progress:
+            done = 0
             for block in rec.chunks(CHUNK_SAMPLES):
                 acc.update(block)
-                advance(block.size)
+                done += block.size
+                if progress is not None:
+                    progress(done, rec.n_samples)
         data = inspect_data(rec, acc.result())
     if args.json:
         sys.stdout.write(json.dumps(data, allow_nan=False) + "\n")

@@ -27,7 +27,7 @@ _WHERE = {
     "render_plots": "_plots",
     "CAUTION": "_text",
     "print_grade": "_text",
-    "progress_reporter": "_text",
+    "progress_reporter": "_progress",
     "render_caution": "_text",
     "render_header": "_text",
     "render_notes": "_text",

@@ -1,4 +1,4 @@
-"""Drift reports: text (rich), JSON document, PNG plots, live watch display, progress bar.
+"""Drift reports: text (rich), JSON document, PNG plots, live watch display.
 
 Renderers only draw what :mod:`iqscope.measure.drift` computed (a
 :class:`~iqscope.measure.drift.DriftResult` or a
@@ -19,7 +19,6 @@ from matplotlib.figure import Figure
 from rich.console import Console, Group, RenderableType
 from rich.live import Live
 from rich.panel import Panel
-from rich.progress import BarColumn, Progress, TextColumn, TimeRemainingColumn
 from rich.table import Table
 from rich.text import Text
 
@@ -37,7 +36,6 @@ __all__ = [
     "drift_plots",
     "watch_panel",
     "live_watch",
-    "progress_reporter",
 ]
 
 #: Schema of ``iqscope drift --json``.
@@ -281,27 +279,3 @@ def live_watch(console: Console, title: str) -> Iterator[Callable[[WatchStatus |
                 live.update(watch_panel(status, title=title, state=state))
 
         yield show
-
-
-@contextlib.contextmanager
-def progress_reporter(console: Console | None, *, enabled: bool, label: str) -> Iterator[Callable[[int, int], None]]:
-    """Yield ``progress(done, total)`` driving a transient progress bar on ``console``
-    (stderr); a no-op when not ``enabled``."""
-    if not enabled:
-        yield lambda done, total: None
-        return
-    progress = Progress(
-        TextColumn("{task.description}"),
-        BarColumn(),
-        TextColumn("{task.percentage:>5.1f} %"),
-        TimeRemainingColumn(),
-        console=console or Console(stderr=True),
-        transient=True,
-    )
-    with progress:
-        task = progress.add_task(label, total=None)
-
-        def update(done: int, total: int) -> None:
-            progress.update(task, completed=done, total=total)
-
-        yield update

@@ -1,4 +1,4 @@
-"""Rendering of ``iqscope inspect``: a rich table of the recording facts, and a progress bar.
+"""Rendering of ``iqscope inspect``: a rich table of the recording facts.
 
 The data are the plain mapping that ``iqscope inspect --json`` prints (see
 ``iqscope.cli._inspect.inspect_data``); nothing here computes a figure.
@@ -6,15 +6,13 @@ The data are the plain mapping that ``iqscope inspect --json`` prints (see
 
 from __future__ import annotations
 
-import contextlib
-from collections.abc import Callable, Iterator, Mapping
+from collections.abc import Mapping
 from typing import Any
 
 from rich.console import Console
-from rich.progress import BarColumn, Progress, TextColumn, TimeRemainingColumn
 from rich.table import Table
 
-__all__ = ["inspect_table", "render_inspect", "progress_bar", "format_hz", "format_db"]
+__all__ = ["inspect_table", "render_inspect", "format_hz", "format_db"]
 
 
 def format_hz(value: float | None) -> str:
@@ -82,29 +80,3 @@ def render_inspect(data: Mapping[str, Any], console: Console | None = None) -> N
     """Print the inspect table to ``console`` (stdout by default; inject a Console writing to
     a StringIO in tests)."""
     (console or Console()).print(inspect_table(data))
-
-
-@contextlib.contextmanager
-def progress_bar(
-    total: int, console: Console | None = None, *, enabled: bool = True, label: str = "reading"
-) -> Iterator[Callable[[int], None]]:
-    """Yield ``advance(n)`` for a progress bar of ``total`` samples on ``console`` (stderr).
-
-    With ``enabled=False`` (short files, non-terminal stderr, ``--json`` piping) the
-    returned callable does nothing and nothing is printed.
-    """
-    if not enabled:
-        yield lambda n: None
-        return
-    console = console or Console(stderr=True)
-    progress = Progress(
-        TextColumn("{task.description}"),
-        BarColumn(),
-        TextColumn("{task.percentage:>5.1f} %"),
-        TimeRemainingColumn(),
-        console=console,
-        transient=True,
-    )
-    with progress:
-        task = progress.add_task(label, total=total)
-        yield lambda n: progress.advance(task, n)

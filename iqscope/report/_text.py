@@ -11,9 +11,8 @@ with the HTML report. Renderers never compute a measurement: they look stored nu
 
 from __future__ import annotations
 
-import contextlib
 import math
-from collections.abc import Callable, Iterator, Mapping, Sequence
+from collections.abc import Mapping, Sequence
 from typing import Final
 
 from rich import box
@@ -55,7 +54,6 @@ __all__ = [
     "render_summary",
     "render_profile",
     "render_profile_list",
-    "progress_reporter",
 ]
 
 #: Readable names of the measurement keys (every key the pipeline produces).
@@ -562,33 +560,3 @@ def render_profile_list(profiles: Sequence[LimitsProfile], defaults: Mapping[str
         every = bool(modes) and len(modes) == len(defaults)
         table.add_row(p.name, "every mode" if every else ", ".join(modes), p.description)
     return table
-
-
-@contextlib.contextmanager
-def progress_reporter(
-    console: Console, label: str, *, enabled: bool = True
-) -> Iterator[Callable[[int, int], None] | None]:
-    """A transient progress bar on ``console`` (stderr); yields a ``(done, total)`` callback.
-
-    Yields None when disabled (quiet, or stderr not a terminal), so the pipeline skips it.
-    """
-    if not enabled:
-        yield None
-        return
-    from rich.progress import BarColumn, Progress, TextColumn, TimeRemainingColumn
-
-    progress = Progress(
-        TextColumn("{task.description}"),
-        BarColumn(),
-        TextColumn("{task.percentage:>5.1f} %"),
-        TimeRemainingColumn(),
-        console=console,
-        transient=True,
-    )
-    with progress:
-        task = progress.add_task(label, total=None)
-
-        def update(done: int, total: int) -> None:
-            progress.update(task, completed=done, total=max(total, 1))
-
-        yield update
