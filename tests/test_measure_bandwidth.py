@@ -108,6 +108,10 @@ def test_narrow_line_is_resolution_limited(rng: np.random.Generator) -> None:
     m = an.measurements["occupied_bandwidth_hz"]
     assert m.details["resolution_limited"] is True
     assert "--resolution" in m.note
+    # Review finding 3: widened by the window, the true width is at most the figure; that is
+    # a resolution limit, not a noise bound, so the noise flag stays clear.
+    assert "at most" in m.note and "upper bound" not in m.note
+    assert not m.limited_by_noise and m.bound is None
     fine = analyse(ArrayRecording(x, FS), AnalysisRequest(resolution_hz=1.0))
     assert fine.measurements["occupied_bandwidth_hz"].value < m.value
 
@@ -127,3 +131,79 @@ def test_obw_sigma_covers_68_percent() -> None:
         m = an.measurements["occupied_bandwidth_hz"]
         hits += abs(m.value - 0.99 * 2400) <= m.uncertainty
     assert 0.5 <= hits / trials <= 0.85
+
+
+def _obw_exact(ex_of_f, lo: float, hi: float):  # type: ignore[no-untyped-def]
+    from iqscope.dsp import AveragedSpectrum
+
+    fs, nfft, floor = 48_000.0, 4800, 1e-6
+    f = np.fft.fftshift(np.fft.fftfreq(nfft, 1 / fs))  # 10 Hz bins, edges at +/- 5 Hz
+    spec = AveragedSpectrum(f, floor + ex_of_f(f), 10.0, 20.0, "blackmanharris", 100, fs, 0.5, 95.0, nfft)
+    return occupied_bandwidth(spec, floor, lo, hi)
+
+
+def test_obw_with_negative_noise_subtracted_bins_is_mirror_symmetric() -> None:
+    """Review finding 3: the cumulative sum of a noise-subtracted PSD is not monotonic.
+
+    Exact spectrum (excess over the floor): a block of E over 0..490 Hz (50 bins), an
+    over-subtracted stretch of -0.02 of the block's power over 1000 Hz, then a weak skirt
+    holding +0.02 over 1500..1990 Hz. RR No. 1.153 leaves 0.5 % of the total T = P_block
+    below the lower and above the upper limit; scanning each side from its own end (the
+    outermost crossing), lower = -5 + 0.005 * 500 = -2.5 Hz (uniform-within-bin model) and
+    upper = 1995 - (0.005 / 0.02) * 500 = 1870 Hz. The definition is symmetric in lower and
+    upper, so the mirror image f -> -f must give the mirrored limits (a left-to-right
+    binary search for 99.5 % could stop at the crossing inside the block, 492.5 Hz).
+    Exact arithmetic: tolerance 1e-6 Hz.
+    """
+    e = 1e-6
+    p_block = 50 * e
+
+    def ex(f: np.ndarray) -> np.ndarray:
+        out = np.zeros(f.size)
+        out[(f >= 0) & (f < 500)] = e
+        out[(f >= 500) & (f < 1500)] = -0.02 * p_block / 100
+        out[(f >= 1500) & (f < 2000)] = 0.02 * p_block / 50
+        return out
+
+    obw, lo, hi, _ = _obw_exact(ex, -600.0, 2000.0)
+    assert lo == pytest.approx(-2.5, abs=1e-6) and hi == pytest.approx(1870.0, abs=1e-6)
+    obw_m, lo_m, hi_m, _ = _obw_exact(lambda f: ex(-f), -2000.0, 600.0)
+    assert lo_m == pytest.approx(-1870.0, abs=1e-6) and hi_m == pytest.approx(2.5, abs=1e-6)
+    assert obw_m == pytest.approx(obw, abs=1e-6)
+
+
+def test_obw_note_bounds_power_hidden_under_the_noise() -> None:
+    """Skirts under the detection level are cut off: the note says how much could hide there.
+
+    Closed form: a flat 300-2700 Hz band of noise (RR No. 1.153 OBW 0.99 x 2400 Hz) plus a
+    flat pedestal at 0.05 of the receiver-noise PSD over 2700-12000 Hz, too weak for any
+    bin to stand above the noise. The power the pedestal puts just outside the computed
+    band is 0.05 N0 (width) / P_band; the stated 97.7 % bound must cover it, and when it
+    could exceed 0.5 % the note must say the true width may be larger. A strong band (90 dB
+    over the noise in total) leaves nothing to hide: the note says "at most".
+    """
+    from iqscope.measure import PROVIDERS
+
+    rng = np.random.default_rng(97)
+    n = 1 << 16
+    n0 = 1e-9 / FS  # receiver noise PSD, FS^2/Hz (total 1e-9 over FS)
+    noise = np.sqrt(1e-9 / 2) * (rng.standard_normal(n) + 1j * rng.standard_normal(n))
+    req = AnalysisRequest(mode="usb", carrier_hz=0.0)
+
+    def band(p: float) -> np.ndarray:
+        x = shaped_noise(rng, n, lambda f: ((f >= 300) & (f <= 2700)).astype(float))
+        return x * np.sqrt(p / np.mean(np.abs(x) ** 2))
+
+    strong = analyse(ArrayRecording(band(1e-4) + noise, FS), req, providers=PROVIDERS[:6])
+    m = strong.measurements["occupied_bandwidth_hz"]
+    assert m.details["hidden_outside_max_fraction"] < 0.005 and "at most" in m.note
+
+    p_band = 3e-10
+    ped = shaped_noise(rng, n, lambda f: ((f > 2700) & (f <= 12000)).astype(float))
+    ped *= np.sqrt(0.05 * n0 * 9300.0 / np.mean(np.abs(ped) ** 2))
+    weak = analyse(ArrayRecording(band(p_band) + ped + noise, FS), req, providers=PROVIDERS[:6])
+    m = weak.measurements["occupied_bandwidth_hz"]
+    lo, hi = m.details["search_lower_hz"], m.details["search_upper_hz"]
+    hidden_true = 0.05 * n0 * min(hi - lo, 12000.0 - hi) / p_band
+    assert m.details["hidden_outside_max_fraction"] >= hidden_true > 0.005
+    assert "may be larger" in m.note

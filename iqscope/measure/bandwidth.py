@@ -39,14 +39,39 @@ BETA_HALF = 0.005
 RESOLUTION_LIMIT = 4.0
 
 
-def _crossing(cum: npt.NDArray[np.float64], level: float, edges: npt.NDArray[np.float64]) -> tuple[float, int]:
-    """Frequency where the piecewise-linear cumulative power first reaches ``level``."""
-    j = int(np.searchsorted(cum, level, side="left"))
+def _lower_crossing(cum: npt.NDArray[np.float64], level: float, edges: npt.NDArray[np.float64]) -> tuple[float, int]:
+    """Frequency where the cumulative power from the left first reaches ``level``, and its bin.
+
+    ``cum`` is the cumulative noise-subtracted power at the bin edges; it is not monotonic
+    (a noise-subtracted bin can be negative), so the first edge with ``cum >= level`` is
+    taken (``np.argmax`` on the boolean), not a binary search. Within that bin the power
+    is spread uniformly (linear interpolation).
+    """
+    reach = cum >= level
+    j = int(np.argmax(reach)) if reach.any() else cum.size - 1
     j = min(max(j, 1), cum.size - 1)
     c0, c1 = cum[j - 1], cum[j]
     t = 0.0 if c1 == c0 else (level - c0) / (c1 - c0)
     t = min(max(t, 0.0), 1.0)
     return float(edges[j - 1] + t * (edges[j] - edges[j - 1])), j - 1
+
+
+def _upper_crossing(cum: npt.NDArray[np.float64], level: float, edges: npt.NDArray[np.float64]) -> tuple[float, int]:
+    """Frequency where the cumulative power from the right first reaches ``level``, and its bin.
+
+    The mirror of :func:`_lower_crossing` on ``rc = total - cum`` (the power above each
+    edge), scanned from the upper end, so that the power above the upper limit is
+    ``level`` (RR No. 1.153) whatever the noise does further in.
+    """
+    rc = cum[-1] - cum
+    reach = rc >= level
+    # Last edge (from the left) whose power above it still reaches the level.
+    k = int(rc.size - 1 - np.argmax(reach[::-1])) if reach.any() else 0
+    k = min(max(k, 0), rc.size - 2)
+    c0, c1 = rc[k], rc[k + 1]
+    t = 0.0 if c0 == c1 else (c0 - level) / (c0 - c1)
+    t = min(max(t, 0.0), 1.0)
+    return float(edges[k] + t * (edges[k + 1] - edges[k])), k
 
 
 def occupied_bandwidth(
@@ -86,8 +111,8 @@ def occupied_bandwidth(
     if not total > 0:
         return nan, nan, nan, nan
     edges = np.concatenate((f[a:b] - df / 2, [f[b - 1] + df / 2]))
-    f_lo, i_lo = _crossing(cum, beta_half * total, edges)
-    f_hi, i_hi = _crossing(cum, (1.0 - beta_half) * total, edges)
+    f_lo, i_lo = _lower_crossing(cum, beta_half * total, edges)
+    f_hi, i_hi = _upper_crossing(cum, beta_half * total, edges)
     # Uncertainty: var of the cumulative power outside each edge (bins' chi-square
     # variance psd^2 / K, widened by the bin correlation), over the PSD at the edge.
     k = spectrum_dof(spectrum)
@@ -183,14 +208,30 @@ def bandwidth_figures(ctx: AnalysisContext) -> FigureSet:
     lo, hi = lay.lo_hz - pad, lay.hi_hz + pad
     obw, fl, fh, s = occupied_bandwidth(spec, lay.floor.psd, lo, hi, exclude=lay.artefact_mask)
     rbw = f"RBW {spec.enbw_hz:.3g} Hz ({spec.window})"
-    narrow = f"; within {RESOLUTION_LIMIT:g} RBW: set by the resolution, an upper bound (use --resolution)"
+    # A width within a few RBW is widened by the window's own response: the true width is
+    # at most the figure. That is a resolution limit, not a noise bound, so limited_by_noise
+    # stays False (DESIGN.md: that flag marks a noise bound) and details say
+    # resolution_limited.
+    narrow = (
+        f"; within {RESOLUTION_LIMIT:g} RBW: widened by the window, the true width is at most this "
+        "(use --resolution for a finer figure)"
+    )
     if math.isfinite(obw):
         res_lim = obw < RESOLUTION_LIMIT * spec.enbw_hz
+        hidden, hidden_note = _hidden_outside(ctx, lay, lo, hi)
         out.measurements["occupied_bandwidth_hz"] = Measurement(
             value=obw, unit="Hz", uncertainty=s,
             note=f"99 % power bandwidth (RR No. 1.153), noise subtracted, {fl:.1f} to {fh:.1f} Hz; {rbw}"
+            + hidden_note
             + (narrow if res_lim else ""),
-            details={"lower_hz": fl, "upper_hz": fh, "resolution_limited": res_lim},
+            details={
+                "lower_hz": fl,
+                "upper_hz": fh,
+                "resolution_limited": res_lim,
+                "search_lower_hz": lo,
+                "search_upper_hz": hi,
+                "hidden_outside_max_fraction": hidden,
+            },
         )
         out.markers["obw_lower"] = fl
         out.markers["obw_upper"] = fh
@@ -215,6 +256,39 @@ def bandwidth_figures(ctx: AnalysisContext) -> FigureSet:
     else:
         out.measurements["bandwidth_26db_hz"] = failed("Hz", "no power above the noise floor")
     return out
+
+
+def _hidden_outside(ctx: AnalysisContext, lay: Layout, lo: float, hi: float) -> tuple[float, str]:
+    """How much of the emission could hide under the noise just outside ``[lo, hi]``.
+
+    The occupied bandwidth is integrated over the band where the spectrum stands above the
+    noise (padded); skirts below the detection level beyond it are cut off. The
+    noise-subtracted power within one band-width outside each edge, at its 97.7 % upper
+    limit (:attr:`BandPower.upper_bound`), over the power inside, bounds what was cut: when
+    it could exceed the 0.5 % that RR No. 1.153 leaves outside each limit, the true width
+    may be larger, and the note says so.
+    """
+    spec = ctx.spectrum
+    w = max(hi - lo, 0.0)
+    inside = lay.band(spec, lo, hi, carrier=False, random=True)
+    if not inside.power > 0 or w <= 0:
+        return float("nan"), ""
+    below = lay.band(spec, lo - w, lo - 0.5 * spec.bin_hz, carrier=False, random=True)
+    above = lay.band(spec, hi + 0.5 * spec.bin_hz, hi + w, carrier=False, random=True)
+    cut = sum(b.upper_bound for b in (below, above) if b.n_bins > 0 and math.isfinite(b.upper_bound) and b.upper_bound > 0)
+    frac = cut / inside.power
+    if frac > BETA_HALF:
+        note = (
+            f"; computed over {lo:.1f} to {hi:.1f} Hz, where the spectrum stands above the noise: up to "
+            f"{100 * frac:.2g} % of the power could lie under the noise just outside (more than the 0.5 % "
+            "RR No. 1.153 leaves beyond each limit), so the true width may be larger"
+        )
+    else:
+        note = (
+            f"; computed over {lo:.1f} to {hi:.1f} Hz: at most {100 * frac:.2g} % of the power lies under "
+            "the noise just outside, under the 0.5 % left beyond each limit"
+        )
+    return float(frac), note
 
 
 #: Both bandwidths apply in every mode (pipeline ``provides``).
