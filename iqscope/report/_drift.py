@@ -8,13 +8,11 @@ Renderers only draw what :mod:`iqscope.measure.drift` computed (a
 from __future__ import annotations
 
 import contextlib
-import io
 import math
 from collections.abc import Callable, Iterator, Mapping
 from typing import Any, Final
 
 import numpy as np
-from matplotlib.backends.backend_agg import FigureCanvasAgg
 from matplotlib.figure import Figure
 from rich.console import Console, Group, RenderableType
 from rich.live import Live
@@ -23,8 +21,11 @@ from rich.table import Table
 from rich.text import Text
 
 from ..io._recording import Recording
+from ..measure._analysis import Trace
 from ..measure._result import Measurement
 from ..measure.drift import NOTE_INCLUDES_RECEIVER, NOTE_RELATIVE, DriftResult, WatchStatus
+from . import _plots
+from ._plots import figure_png, line_figure, worst_window
 from ._units import format_duration, format_frequency, format_measurement, format_rate, ge_le
 
 __all__ = [
@@ -52,9 +53,6 @@ DRIFT_FIGURES: Final[Mapping[str, str]] = {
 }
 #: Plots ``drift_plots`` may produce (file names ``STEM-drift-NAME.png``).
 DRIFT_PLOT_NAMES: Final = ("frequency", "allan")
-
-_SIZE: Final = (8.0, 4.5)
-_DPI: Final = 110
 
 
 def _finite(x: float | None) -> float | None:
@@ -156,26 +154,22 @@ def render_drift(result: DriftResult, recording: Recording, *, ascii_only: bool 
 
 
 # -- plots ----------------------------------------------------------------------------
-def _png(fig: Figure) -> bytes:
-    FigureCanvasAgg(fig)
-    buf = io.BytesIO()
-    fig.savefig(buf, format="png", dpi=_DPI, metadata={"Software": None})
-    return buf.getvalue()
-
-
+# Drawn by the shared figures of report/_plots.py (one look for grade and drift); drift
+# adds its own marks: the regression line and the settling time.
 def frequency_figure(result: DriftResult, title: str) -> Figure:
-    """Frequency offset against time with its 1-sigma band, the regression line, the
-    worst window and the settling time."""
+    """Frequency offset against time with its 1-sigma band and the worst window
+    (:func:`~iqscope.report._plots.line_figure`), plus the regression line and the
+    settling time. Time is in minutes beyond 10 minutes."""
     tr = result.frequency_trace()
-    fig = Figure(figsize=_SIZE, layout="constrained")
-    ax = fig.add_subplot()
     x = np.asarray(tr.x, dtype=float)
-    y = np.asarray(tr.y, dtype=float)
     scale, xlab = (60.0, "time (min)") if x.size and x[-1] > 600 else (1.0, "time (s)")
-    ax.plot(x / scale, y, color="#1b2631", linewidth=0.8, label="block frequency")
-    sig = np.asarray(tr.extra.get("sigma", np.zeros_like(y)), dtype=float)
-    if sig.shape == y.shape:
-        ax.fill_between(x / scale, y - sig, y + sig, color="#2471a3", alpha=0.25, linewidth=0, label="1-sigma")
+    y_label = tr.y_label + (" (relative to reference line)" if tr.extra.get("relative") else "")
+    shown = Trace(x=x / scale, y=np.asarray(tr.y, dtype=float), x_label=xlab, y_label=y_label)
+    window = worst_window(result.measurements)
+    if window is not None:
+        window = (window[0] / scale, window[1] / scale, window[2])
+    fig = line_figure(shown, title, band=tr.extra.get("sigma"), window=window)
+    ax = fig.axes[0]
     fit = tr.extra.get("fit")
     slope = result.measurements.get("drift_hz_per_min")
     if fit is not None and x.size:
@@ -183,41 +177,23 @@ def frequency_figure(result: DriftResult, title: str) -> Figure:
         xx = np.array([x[0], x[-1]])
         lab = "fit" if slope is None or slope.value is None else f"fit {slope.value:+.3g} Hz/min"
         ax.plot(xx / scale, icpt + b * xx - result.nominal_offset_hz, "--", color="#c0392b", linewidth=1.0, label=lab)
-    ww = result.measurements.get("drift_worst_window_hz")
-    if ww is not None and ww.value is not None and "window_start_s" in ww.details:
-        w0 = float(ww.details["window_start_s"])
-        ax.axvspan(w0 / scale, (w0 + float(ww.details["window_s"])) / scale, color="#f5b041", alpha=0.15,
-                   label=f"worst {ww.details['window_s']:g}-s window")
     st = result.measurements.get("warmup_settling_s")
     kd = tr.extra.get("key_down_s")
     if st is not None and st.value is not None and st.value > 0 and kd is not None:
         ax.axvline((kd + st.value) / scale, color="#27ae60", linewidth=1.0, label="settled")
-    ax.set_xlabel(xlab)
-    ax.set_ylabel(tr.y_label + (" (relative to reference line)" if tr.extra.get("relative") else ""))
-    ax.set_title(title, fontsize=10)
-    ax.grid(True, alpha=0.3)
-    ax.legend(loc="best", fontsize=7)
+    if ax.get_legend_handles_labels()[0]:
+        ax.legend(loc="best", fontsize=7)
     return fig
 
 
 def allan_figure(result: DriftResult, title: str) -> Figure | None:
-    """Overlapping Allan deviation against tau (log-log) with simple error bars."""
+    """Overlapping Allan deviation against tau (log-log) with simple error bars
+    (:func:`~iqscope.report._plots.allan_figure`); None without the RF frequency."""
     tr = result.allan_trace()
     if tr is None:
         return None
-    fig = Figure(figsize=_SIZE, layout="constrained")
-    ax = fig.add_subplot()
-    x = np.asarray(tr.x, dtype=float)
-    y = np.asarray(tr.y, dtype=float)
-    ok = (x > 0) & (y > 0)
-    err = np.asarray(tr.extra.get("error"), dtype=float)
-    ax.errorbar(x[ok], y[ok], yerr=err[ok] if err.shape == y.shape else None, fmt="o-", markersize=3, linewidth=0.9)
-    ax.set_xscale("log")
-    ax.set_yscale("log")
-    ax.set_xlabel(tr.x_label)
-    ax.set_ylabel(tr.y_label + " (fractional)")
-    ax.set_title(title, fontsize=10)
-    ax.grid(True, which="both", alpha=0.3)
+    fig = _plots.allan_figure(tr, title)
+    fig.axes[0].set_ylabel(tr.y_label + " (fractional)")
     return fig
 
 
@@ -225,10 +201,10 @@ def drift_plots(result: DriftResult, name: str) -> dict[str, bytes]:
     """``{"frequency": PNG, "allan": PNG}`` (ADEV only when the RF frequency is known)."""
     out: dict[str, bytes] = {}
     if result.track.corrected()[0].size > 1:
-        out["frequency"] = _png(frequency_figure(result, f"Frequency over time: {name}"))
+        out["frequency"] = figure_png(frequency_figure(result, f"Frequency over time: {name}"))
     fig = allan_figure(result, f"Allan deviation: {name}")
     if fig is not None:
-        out["allan"] = _png(fig)
+        out["allan"] = figure_png(fig)
     return out
 
 

@@ -23,8 +23,9 @@ from matplotlib.figure import Figure
 
 from ..grading import GradeResult
 from ..measure._analysis import Analysis, Trace
+from ..measure._result import Measurement
 
-__all__ = ["PLOT_NAMES", "render_plots", "spectrum_figure", "figure_png"]
+__all__ = ["PLOT_NAMES", "render_plots", "spectrum_figure", "figure_png", "line_figure", "allan_figure", "worst_window"]
 
 #: Plots ``render_plots`` may produce, in report order (file names ``STEM-NAME.png``).
 PLOT_NAMES: Final = ("spectrum", "spectrogram", "envelope", "frequency", "allan")
@@ -57,17 +58,21 @@ def render_plots(result: GradeResult) -> dict[str, bytes]:
         out["spectrogram"] = figure_png(_spectrogram_figure(a, sg))
     env = a.traces.get("envelope")
     if env is not None and np.ndim(env.y) == 1 and np.size(env.y) > 1:
-        out["envelope"] = figure_png(_line_figure(a, env, "Envelope over time"))
+        out["envelope"] = figure_png(line_figure(env, _title(a, "Envelope over time")))
     fr = a.traces.get("frequency")
     if fr is not None and np.ndim(fr.y) == 1 and np.size(fr.y) > 1:
         out["frequency"] = figure_png(
-            _line_figure(
-                a, fr, "Frequency over time", band=fr.extra.get("sigma"), relative=True, window=_worst_window(a)
+            line_figure(
+                fr,
+                _title(a, "Frequency over time"),
+                band=fr.extra.get("sigma"),
+                relative=True,
+                window=worst_window(a.measurements),
             )
         )
     ad = a.traces.get("allan_deviation")
     if ad is not None and np.ndim(ad.y) == 1 and np.size(ad.y) > 1:
-        out["allan"] = figure_png(_allan_figure(a, ad))
+        out["allan"] = figure_png(allan_figure(ad, _title(a, "Allan deviation")))
     return out
 
 
@@ -418,9 +423,9 @@ def _spectrogram_figure(a: Analysis, tr: Trace) -> Figure:
     return fig
 
 
-def _worst_window(a: Analysis) -> tuple[float, float, str] | None:
+def worst_window(measurements: Mapping[str, Measurement]) -> tuple[float, float, str] | None:
     """Start, length and legend text of the worst drift window (``drift_worst_window_hz``)."""
-    m = a.measurements.get("drift_worst_window_hz")
+    m = measurements.get("drift_worst_window_hz")
     if m is None or m.value is None:
         return None
     start, span = _finite(m.details.get("window_start_s")), _finite(m.details.get("window_s"))
@@ -430,10 +435,10 @@ def _worst_window(a: Analysis) -> tuple[float, float, str] | None:
     return start, span, f"worst {span:g}-s window: {what}{m.value:.3g} Hz peak-to-peak"
 
 
-def _line_figure(
-    a: Analysis,
+def line_figure(
     tr: Trace,
-    what: str,
+    title: str,
+    *,
     band: Any = None,
     relative: bool = False,
     window: tuple[float, float, str] | None = None,
@@ -472,12 +477,13 @@ def _line_figure(
         ax.legend(loc="upper right", fontsize=7)
     ax.set_xlabel(tr.x_label)
     ax.set_ylabel(y_label)
-    ax.set_title(_title(a, what), fontsize=10)
+    ax.set_title(title, fontsize=10)
     ax.grid(True, alpha=0.3)
     return fig
 
 
-def _allan_figure(a: Analysis, tr: Trace) -> Figure:
+def allan_figure(tr: Trace, title: str) -> Figure:
+    """Allan deviation against tau, log-log, with the trace's ``extra["error"]`` as error bars."""
     fig = Figure(figsize=_SIZE, layout="constrained")
     ax = fig.add_subplot()
     x = np.asarray(tr.x, dtype=float)
@@ -492,6 +498,6 @@ def _allan_figure(a: Analysis, tr: Trace) -> Figure:
     ax.set_yscale("log")
     ax.set_xlabel(tr.x_label)
     ax.set_ylabel(tr.y_label)
-    ax.set_title(_title(a, "Allan deviation"), fontsize=10)
+    ax.set_title(title, fontsize=10)
     ax.grid(True, which="both", alpha=0.3)
     return fig
