@@ -179,3 +179,24 @@ def test_given_carrier_is_not_reported_as_measured_offset(rng: np.random.Generat
     off = an.measurements["frequency_offset_hz"]
     assert off.value == pytest.approx(2000.37, abs=0.05)
     assert off.value != 2000.0
+
+
+def test_pep_set_by_one_click_is_flagged(rng: np.random.Generator) -> None:
+    """Review finding 4: PEP is the largest wideband |x|^2, so one click can set it.
+
+    Closed form (dsb_pep above): a steady DSB tone pair peaks alike in every envelope
+    block, so without a click the largest block peak is within a fraction of a dB of the
+    90th percentile of the block peaks; one sample of amplitude 5 (10 x the DSB peak
+    amplitude 2a = 0.5) sets PEP 20 dB higher, and the note must say so. The figure itself
+    stays 10 log10(PEP / P_c) as documented (tolerance 0.5 dB as above).
+    """
+    a, c = 0.25, math.sqrt(2 * 0.25**2 / 1e4)
+    x = dsb(rng, 1 << 17, 2345.6, 1111.1, a, c, 1e-8)
+    clean = analyse(ArrayRecording(x, FS)).measurements["carrier_below_pep_db"]
+    assert clean.details["pep_over_block_peak_p90_db"] < 0.5
+    assert "click" not in clean.note
+    x[70_000] = 5.0
+    clicked = analyse(ArrayRecording(x, FS)).measurements["carrier_below_pep_db"]
+    assert clicked.details["pep_over_block_peak_p90_db"] > 15.0
+    assert "click" in clicked.note
+    assert clicked.value == pytest.approx(10 * math.log10(25.0 / c**2), abs=0.5)

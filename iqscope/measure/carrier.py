@@ -6,7 +6,10 @@ Definitions (DESIGN.md section 3, contract):
   power (both sidebands for DSB) over the residual carrier power. Positive when the
   carrier is below the sidebands.
 - ``carrier_below_pep_db = 10 log10(PEP / P_carrier)``, PEP the largest ``|x|^2`` of
-  the recording (RR No. 1.157 peak envelope power, for the sampled signal).
+  the recording (RR No. 1.157 peak envelope power, for the sampled signal), over the
+  whole capture bandwidth: anything else in the capture (a click, a neighbour, the
+  receiver's DC offset) can raise it; the note flags the cheap-to-see cases
+  (:func:`_pep_caveats`).
 - ``frequency_offset_hz``: where the carrier sits relative to the capture centre.
 
 Powers are integrated from the calibrated PSD with the noise floor subtracted
@@ -18,13 +21,15 @@ stand ``DETECTION_SIGMAS`` above the noise gives a lower bound on the suppressio
 from __future__ import annotations
 
 import math
-
 from collections.abc import Mapping
+from dataclasses import replace
+
+import numpy as np
 
 from ..dsp._lines import BandPower, LinePower
 from ._context import AnalysisContext, FigureSet
 from ._result import Artefact, Measurement, failed
-from .locate import Layout, db_ratio, layout_of
+from .locate import Layout, db_ratio, layout_of, stats_of
 
 __all__ = ["carrier_figures", "sideband_power", "dc_artefact"]
 
@@ -118,10 +123,55 @@ def carrier_figures(ctx: AnalysisContext) -> FigureSet:
     else:
         noise_total = lay.floor.psd * spec.sample_rate_hz
         pep_sigma = pep * math.sqrt(2.0 * max(noise_total, 0.0) / pep)
-        out.measurements["carrier_below_pep_db"] = _ratio_figure(
-            pep, pep_sigma, car, "peak envelope power (largest |x|^2) over the residual carrier" + dc_note, mode
+        caveat, pep_details = _pep_caveats(ctx, lay, pep)
+        m = _ratio_figure(
+            pep, pep_sigma, car,
+            "peak envelope power (largest |x|^2 over the whole capture bandwidth) over the residual carrier"
+            + dc_note + caveat,
+            mode,
         )
+        if m.value is not None:
+            m = replace(m, details=dict(m.details, **pep_details))
+        out.measurements["carrier_below_pep_db"] = m
     return out
+
+
+#: A recording's largest |x|^2 this far above the 90th percentile of the envelope blocks'
+#: peaks comes from a few blocks (a click, a burst from a neighbour): the note says so.
+PEP_OUTLIER_DB = 6.0
+
+
+def _pep_caveats(ctx: AnalysisContext, lay: Layout, pep: float) -> tuple[str, dict[str, float]]:
+    """Cautions on the PEP used by ``carrier_below_pep_db`` (docs/measurements.md section 5).
+
+    The PEP is the largest ``|x|^2`` of the wideband samples, taken in the single pass
+    before the emission band is known (a band-limited envelope would need a second read):
+    a click, another station inside the capture bandwidth or the receiver's DC offset can
+    set it, and a higher PEP reads as a carrier further below it. Two cheap checks on the
+    pass's own statistics: the largest block peak against the 90th percentile of the
+    envelope blocks' peaks (a steady test signal peaks alike in every block), and the
+    receiver's DC line amplitude, which adds at most ``20 log10(1 + a_dc / a_pep)`` dB.
+    """
+    notes: list[str] = []
+    det: dict[str, float] = {}
+    st = stats_of(ctx)
+    b = st.block_peak_power if st is not None else None
+    if b is not None and b.size >= 8:
+        ref = float(np.quantile(b, 0.9))
+        if ref > 0:
+            over = 10.0 * math.log10(pep / ref)
+            det["pep_over_block_peak_p90_db"] = over
+            if over > PEP_OUTLIER_DB:
+                notes.append(
+                    f"the peak stands {over:.1f} dB above the 90th percentile of the envelope blocks' peaks: "
+                    "a click or a burst may have set the PEP, making this figure read high"
+                )
+    dc = lay.dc_line
+    if dc is not None and dc.detected and dc.power > 0 and pep > dc.power:
+        a = math.sqrt(dc.power / pep)
+        det["pep_dc_share_db_max"] = 20.0 * math.log10(1.0 + a)
+        notes.append(f"the receiver's DC line may add up to {20 * math.log10(1 + a):.2g} dB to the PEP")
+    return ("; " + "; ".join(notes) if notes else ""), det
 
 
 def _carrier_provides(ctx: AnalysisContext) -> Mapping[str, str]:
