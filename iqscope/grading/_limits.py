@@ -18,6 +18,13 @@ region and an optional, looser *warn* region, each given by ``min`` and/or ``max
     source = "common practice"
     advice = "carrier leak: trim the modulator balance"
 
+Three optional rule keys serve limits that depend on the station (``iqscope harmonics``):
+``label`` names the limit, so one measurement may carry several limits (one per label);
+``fundamental_hz = { min, max }`` restricts a rule to fundamentals with
+``min <= f < max``; ``pep_attenuation = { at_1w_db, per_decade_db, cap_db }`` replaces
+``pass`` by ``max = -min(at_1w_db + per_decade_db log10(PEP/W), cap_db)`` dBc (the RR
+Appendix 3 form; :class:`PepAttenuation`).
+
 Shipped presets live in ``iqscope/grading/presets/*.toml``; :func:`load_limits` takes
 either a preset name or a path. Every problem with a profile raises
 :class:`~iqscope.errors.LimitsError` naming the file and the offending key.
@@ -33,7 +40,7 @@ import math
 import os
 import sys
 from collections.abc import Mapping, Sequence
-from dataclasses import dataclass
+from dataclasses import dataclass, replace
 from importlib import resources
 from pathlib import Path
 from typing import Any, Final
@@ -49,6 +56,7 @@ __all__ = [
     "LIMITS_SCHEMA",
     "MODES",
     "Bound",
+    "PepAttenuation",
     "Rule",
     "LimitsProfile",
     "preset_names",
@@ -77,7 +85,19 @@ DEFAULT_PRESET_BY_MODE: Final[Mapping[str, str]] = {
 }
 
 _TOP_KEYS: Final = ("schema", "name", "description", "source", "rule")
-_RULE_KEYS: Final = ("measurement", "modes", "pass", "warn", "unit", "source", "advice")
+_RULE_KEYS: Final = (
+    "measurement",
+    "modes",
+    "pass",
+    "warn",
+    "unit",
+    "source",
+    "advice",
+    "label",
+    "fundamental_hz",
+    "pep_attenuation",
+)
+_PEP_KEYS: Final = ("at_1w_db", "per_decade_db", "cap_db")
 _BOUND_KEYS: Final = ("min", "max")
 
 
@@ -129,6 +149,50 @@ def _num(x: float) -> str:
 
 
 @dataclass(frozen=True)
+class PepAttenuation:
+    """A power-dependent attenuation: ``min(at_1w_db + per_decade_db * log10(PEP / 1 W), cap_db)``.
+
+    The form of ITU RR Appendix 3 / Rec. ITU-R SM.329 (category A): "43 + 10 log10(PEP)
+    dB or 50 dBc, whichever is less stringent" for amateur stations below 30 MHz is
+    ``PepAttenuation(43, 10, 50)``. A rule carrying one passes levels at least the
+    attenuation below the reference: ``pass = { max = -attenuation_db(PEP) }`` (dBc).
+
+    References
+    ----------
+    .. [1] ITU Radio Regulations, Appendix 3; Rec. ITU-R SM.329, category A limits.
+    """
+
+    at_1w_db: float
+    """Attenuation at a PEP of 1 W, dB (43 in RR Appendix 3)."""
+    per_decade_db: float
+    """dB added per decade of PEP (10: the ``10 log10 P`` term)."""
+    cap_db: float
+    """The attenuation is never more than this, dB ("or 50 dBc, whichever is less stringent")."""
+
+    def uncapped_db(self, pep_w: float) -> float:
+        """``at_1w_db + per_decade_db * log10(pep_w)``, dB, before the cap."""
+        if not (pep_w > 0 and math.isfinite(pep_w)):
+            raise ValueError(f"{pep_w=} must be a finite power > 0 W")
+        return self.at_1w_db + self.per_decade_db * math.log10(pep_w)
+
+    def attenuation_db(self, pep_w: float | None) -> float:
+        """The attenuation asked at ``pep_w`` watts PEP, dB.
+
+        With ``pep_w`` None (power unknown) the cap, which is the most stringent value the
+        rule can ask, is returned; say so to the user.
+        """
+        if pep_w is None:
+            return self.cap_db
+        return min(self.uncapped_db(pep_w), self.cap_db)
+
+    def describe(self) -> str:
+        return f"{_num(self.at_1w_db)} + {_num(self.per_decade_db)} log10(PEP/W) dB, at most {_num(self.cap_db)} dB"
+
+    def to_json(self) -> dict[str, float]:
+        return {"at_1w_db": self.at_1w_db, "per_decade_db": self.per_decade_db, "cap_db": self.cap_db}
+
+
+@dataclass(frozen=True)
 class Rule:
     """One limit: where a measurement passes and where it only warns, for some modes."""
 
@@ -148,9 +212,36 @@ class Rule:
     """What a builder can do when the verdict is warn or fail (empty: the built-in advice)."""
     index: int = 0
     """1-based position of the rule in its file, for messages."""
+    label: str = ""
+    """Name of the limit (e.g. a regulation's paragraph); rules for one measurement with
+    different labels are separate limits (``iqscope harmonics`` applies each)."""
+    fundamental_hz: Bound | None = None
+    """Frequencies of the fundamental the rule applies to, ``min <= f < max`` (None: any);
+    used by ``iqscope harmonics``."""
+    pep_attenuation: PepAttenuation | None = None
+    """Power-dependent pass limit; ``pass_bound`` then holds its most stringent form
+    (``max = -cap_db``) until :meth:`at_pep` resolves it."""
 
     def applies_to(self, mode: str) -> bool:
         return not self.modes or mode in self.modes
+
+    def applies_at(self, frequency_hz: float) -> bool:
+        """True when a fundamental at ``frequency_hz`` lies in ``fundamental_hz`` (upper end open)."""
+        b = self.fundamental_hz
+        if b is None:
+            return True
+        if b.min is not None and frequency_hz < b.min:
+            return False
+        return not (b.max is not None and frequency_hz >= b.max)
+
+    def at_pep(self, pep_w: float | None) -> Rule:
+        """This rule with a power-dependent pass limit resolved at ``pep_w`` W (None: unknown).
+
+        Rules without ``pep_attenuation`` are returned unchanged.
+        """
+        if self.pep_attenuation is None:
+            return self
+        return replace(self, pass_bound=Bound(max=-self.pep_attenuation.attenuation_db(pep_w)))
 
     @property
     def effective_warn(self) -> Bound:
@@ -171,9 +262,13 @@ class Rule:
         out["pass"] = self.pass_bound.to_json()
         if self.warn_bound is not None:
             out["warn"] = self.warn_bound.to_json()
-        for key in ("unit", "source", "advice"):
+        for key in ("unit", "source", "advice", "label"):
             if getattr(self, key):
                 out[key] = getattr(self, key)
+        if self.fundamental_hz is not None:
+            out["fundamental_hz"] = self.fundamental_hz.to_json()
+        if self.pep_attenuation is not None:
+            out["pep_attenuation"] = self.pep_attenuation.to_json()
         return out
 
 
@@ -383,9 +478,18 @@ def _parse_rule(raw: Mapping[str, Any], index: int, where: str | None) -> Rule:
     for m in modes_raw:
         if m not in MODES:
             raise LimitsError(f"{prefix}key 'modes': unknown mode {m!r}; modes: {', '.join(MODES)}", where)
-    if "pass" not in raw:
+    pep = _parse_pep(raw["pep_attenuation"], prefix, where) if "pep_attenuation" in raw else None
+    if pep is not None:
+        if "pass" in raw or "warn" in raw:
+            raise LimitsError(
+                f"{prefix}key 'pep_attenuation' sets the pass limit: leave out 'pass' and 'warn'", where
+            )
+        pass_bound = Bound(max=-pep.cap_db)
+    elif "pass" not in raw:
         raise LimitsError(f"{prefix}key 'pass' is missing (e.g. pass = {{ min = 40 }})", where)
-    pass_bound = _parse_bound(raw["pass"], prefix, "pass", where)
+    else:
+        pass_bound = _parse_bound(raw["pass"], prefix, "pass", where)
+    fundamental = _parse_bound(raw["fundamental_hz"], prefix, "fundamental_hz", where) if "fundamental_hz" in raw else None
     warn_bound = None
     if "warn" in raw:
         warn_bound = _parse_bound(raw["warn"], prefix, "warn", where)
@@ -395,7 +499,7 @@ def _parse_rule(raw: Mapping[str, Any], index: int, where: str | None) -> Rule:
                 f"also lie inside warn): pass {pass_bound.describe()}, warn {warn_bound.describe()}",
                 where,
             )
-    texts = {k: _string(raw, k, prefix, where) for k in ("unit", "source", "advice")}
+    texts = {k: _string(raw, k, prefix, where) for k in ("unit", "source", "advice", "label")}
     return Rule(
         measurement=measurement,
         pass_bound=pass_bound,
@@ -405,7 +509,31 @@ def _parse_rule(raw: Mapping[str, Any], index: int, where: str | None) -> Rule:
         source=texts["source"],
         advice=texts["advice"],
         index=index,
+        label=texts["label"],
+        fundamental_hz=fundamental,
+        pep_attenuation=pep,
     )
+
+
+def _parse_pep(raw: Any, prefix: str, where: str | None) -> PepAttenuation:
+    if not isinstance(raw, dict):
+        raise LimitsError(
+            f"{prefix}key 'pep_attenuation' must be a table such as "
+            "{{ at_1w_db = 43, per_decade_db = 10, cap_db = 50 }}",
+            where,
+        )
+    for k in raw:
+        if k not in _PEP_KEYS:
+            raise LimitsError(f"{prefix}unknown key 'pep_attenuation.{k}'; use {', '.join(_PEP_KEYS)}", where)
+    vals: dict[str, float] = {}
+    for k in _PEP_KEYS:
+        v = raw.get(k)
+        if v is None:
+            raise LimitsError(f"{prefix}key 'pep_attenuation.{k}' is missing", where)
+        if isinstance(v, bool) or not isinstance(v, (int, float)) or not math.isfinite(v):
+            raise LimitsError(f"{prefix}key 'pep_attenuation.{k}' must be a finite number, found {v!r}", where)
+        vals[k] = float(v)
+    return PepAttenuation(**vals)
 
 
 def _parse_bound(raw: Any, prefix: str, key: str, where: str | None) -> Bound:
@@ -433,14 +561,15 @@ def _parse_bound(raw: Any, prefix: str, key: str, where: str | None) -> Bound:
 
 def _check_overlaps(rules: Sequence[Rule], where: str | None) -> None:
     """Two rules of equal specificity for the same measurement and mode are ambiguous."""
-    claimed: dict[tuple[str, str], int] = {}
+    claimed: dict[tuple[str, str, str], int] = {}
     for r in rules:
         for m in r.modes or ("*",):
-            key = (r.measurement, m)
+            key = (r.measurement, m, r.label)
             if key in claimed:
                 scope = "every mode" if m == "*" else f"mode {m!r}"
+                what = f" with label {r.label!r}" if r.label else ""
                 raise LimitsError(
-                    f"rules {claimed[key]} and {r.index} both set {r.measurement!r} for {scope}",
+                    f"rules {claimed[key]} and {r.index} both set {r.measurement!r}{what} for {scope}",
                     where,
                 )
             claimed[key] = r.index

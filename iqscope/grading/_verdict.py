@@ -14,7 +14,8 @@
   advice.
 * A measurement that applies but failed (value null) -> warn (inconclusive) with its note.
 * A rule whose measurement is absent warns ("not measured"), unless the measurement does
-  not apply to the mode at all (e.g. opposite sideband on DSB), which is skipped.
+  not apply to the mode at all (e.g. opposite sideband on DSB), or needs other recordings
+  (``harmonic_dbc``, graded by :func:`~iqscope.grading.grade_harmonics`): those are skipped.
 
 ``overall`` is the worst verdict; an analysis with nothing to grade is "warn".
 
@@ -71,6 +72,13 @@ APPLIES_TO: Final[Mapping[str, frozenset[str]]] = {
     "imd3_dbc": frozenset({"two-tone"}),
     "imd5_dbc": frozenset({"two-tone"}),
     "imd3_db_pep": frozenset({"two-tone"}),
+}
+
+
+#: Measurements a limits profile may hold that one recording cannot give; :func:`grade`
+#: lists their rules under "not graded" with the command that grades them.
+GRADED_ELSEWHERE: Final[Mapping[str, str]] = {
+    "harmonic_dbc": "graded by 'iqscope harmonics' (needs recordings at 2f, 3f ...)",
 }
 
 
@@ -242,6 +250,9 @@ def grade(analysis: Analysis, limits: LimitsProfile | None = None) -> GradeResul
     for rule in rules:
         name = rule.measurement
         if name in analysis.measurements:
+            continue
+        if name in GRADED_ELSEWHERE:
+            skipped.append(f"{name}: {GRADED_ELSEWHERE[name]}")
             continue
         applies = APPLIES_TO.get(name)
         if applies is not None and mode not in applies and not rule.modes:
