@@ -1,4 +1,4 @@
-"""Harmonics table, regulatory limits and the attenuation-step check.
+"""Harmonics table (measure), its grading against the spurious preset, and the attenuation-step check.
 
 Check values and their sources:
 
@@ -29,13 +29,11 @@ from iqscope.cli import main
 from iqscope.errors import EXIT_FAIL, EXIT_OK, EXIT_WARN, MetadataError, UsageError
 from iqscope.io import write_sigmf
 from iqscope.io._recording import ArrayRecording
+from iqscope.grading import comparison, grade_harmonics, harmonic_rules, judge_level, load_limits
 from iqscope.measure.harmonics import (
     analyse_levels,
     attenuation_step_check,
-    cfr_97_307_attenuation_db,
-    compare_to_limit,
     harmonics_table,
-    rr_appendix3_attenuation_db,
 )
 
 FS = 48_000.0
@@ -66,23 +64,40 @@ def _set(rng: np.random.Generator, dbc: dict[int, float | None]) -> list[ArrayRe
     return recs
 
 
+def _spurious_rule(label: str, fundamental_hz: float = 7.0e6):
+    rules, _ = harmonic_rules(load_limits("spurious"), fundamental_hz)
+    return next(r for r in rules if r.label == label)
+
+
 class TestLimits:
+    """The harmonic limits now come from the spurious preset (grading), not from code."""
+
     @pytest.mark.parametrize(("pep_w", "att"), [(1.0, 43.0), (5.0, 49.99), (100.0, 50.0), (1000.0, 50.0)])
     def test_rr_appendix3(self, pep_w: float, att: float) -> None:
         """RR Ap. 3 amateur < 30 MHz: min(43 + 10 log P, 50) dB (REFERENCES.md item 5)."""
-        assert rr_appendix3_attenuation_db(pep_w) == pytest.approx(att, abs=0.01)
+        rule = _spurious_rule("RR Appendix 3")
+        assert rule.pep_attenuation is not None
+        assert rule.pep_attenuation.attenuation_db(pep_w) == pytest.approx(att, abs=0.01)
+        assert rule.at_pep(pep_w).pass_bound.max == pytest.approx(-att, abs=0.01)
 
     def test_cfr_97_307(self) -> None:
         """47 CFR 97.307(d) 43 dB below 30 MHz; (e) 60 dB for 30-225 MHz."""
-        assert cfr_97_307_attenuation_db(7.0e6) == 43.0
-        assert cfr_97_307_attenuation_db(50.1e6) == 60.0
-        assert cfr_97_307_attenuation_db(433e6) is None
+        def attenuation(f: float) -> float | None:
+            rules, _ = harmonic_rules(load_limits("spurious"), f)
+            cfr = [r for r in rules if r.label.startswith("47 CFR 97.307")]
+            assert len(cfr) <= 1
+            return None if not cfr else -cfr[0].pass_bound.max
+
+        assert attenuation(7.0e6) == 43.0
+        assert attenuation(50.1e6) == 60.0
+        assert attenuation(433e6) is None
 
     def test_compare(self) -> None:
-        assert compare_to_limit(-55.0, False, -43.0) == "meets"
-        assert compare_to_limit(-40.0, False, -43.0) == "exceeds"
-        assert compare_to_limit(-40.0, True, -43.0) == "inconclusive"  # a bound above the limit
-        assert compare_to_limit(-60.0, True, -43.0) == "meets"  # a bound below the limit
+        rule = _spurious_rule("47 CFR 97.307(d)")  # pass <= -43 dBc
+        assert comparison(judge_level(-55.0, False, rule)) == "meets"
+        assert comparison(judge_level(-40.0, False, rule)) == "exceeds"
+        assert comparison(judge_level(-40.0, True, rule)) == "inconclusive"  # a bound above the limit
+        assert comparison(judge_level(-60.0, True, rule)) == "meets"  # a bound below the limit
 
 
 class TestAttenuationStep:
@@ -132,25 +147,30 @@ class TestTable:
         recs = _set(rng, {2: -45.0, 3: -60.0, 4: None})
         lv = [analyse_levels(r) for r in recs]
         tab = harmonics_table(lv[0], lv[1:])
+        graded = grade_harmonics(tab)  # default: the spurious preset
         assert tab.fundamental.frequency_hz == pytest.approx(F1, abs=1.0)
         rows = {r.n: r for r in tab.harmonics}
+        grades = {g.n: g for g in graded.harmonics}
         assert rows[2].level_dbc == pytest.approx(-45.0, abs=0.1)
         assert rows[3].level_dbc == pytest.approx(-60.0, abs=0.1)
         assert not rows[2].limited_by_noise
         assert rows[4].limited_by_noise and rows[4].level_dbc < -70
-        assert rows[2].comparisons == {"47 CFR 97.307(d)": "meets", "RR Appendix 3": "exceeds"}
-        assert set(rows[3].comparisons.values()) == {"meets"}
-        assert set(rows[4].comparisons.values()) == {"meets"}
+        assert grades[2].comparisons == {"47 CFR 97.307(d)": "meets", "RR Appendix 3": "exceeds"}
+        assert set(grades[3].comparisons.values()) == {"meets"}
+        assert set(grades[4].comparisons.values()) == {"meets"}
         assert tab.worst is rows[2]
-        assert any("assumed 5 W" in a for a in tab.assumptions)
+        assert any("assumed 5 W" in a for a in graded.assumptions)
+        assert graded.overall == "fail" and graded.exit_status == EXIT_FAIL
         json.dumps(tab.to_json(), allow_nan=False)
+        json.dumps(graded.to_json(), allow_nan=False)
 
     def test_pep_given_relaxes_appendix3(self, rng: np.random.Generator) -> None:
         """At 1 W PEP App. 3 asks only 43 dB (43 + 10 log 1): -45 dBc then meets it."""
         lv = [analyse_levels(r) for r in _set(rng, {2: -45.0})]
         tab = harmonics_table(lv[0], lv[1:], pep_w=1.0)
-        assert tab.harmonics[0].comparisons["RR Appendix 3"] == "meets"
-        assert [lim.limit_dbc for lim in tab.limits] == [-43.0, pytest.approx(-43.0)]
+        graded = grade_harmonics(tab, load_limits("spurious"))
+        assert graded.harmonics[0].comparisons["RR Appendix 3"] == "meets"
+        assert [lim.limit_dbc for lim in graded.limits] == [-43.0, pytest.approx(-43.0)]
 
     def test_calibrated_levels_in_dbm(self, rng: np.random.Generator) -> None:
         """dBm = dBFS + offset; PEP in W from the calibrated envelope peak: a -20 dBFS

@@ -9,7 +9,7 @@ import sys
 from pathlib import Path
 from typing import Any
 
-from ..errors import EXIT_FAIL, EXIT_OK, EXIT_WARN, UsageError
+from ..errors import UsageError
 from ._options import add_input_options, check_format, positive_number
 
 __all__ = ["register", "run"]
@@ -23,8 +23,14 @@ Receiver or transmitter? Record the same harmonic again with a known extra atten
 before the receiver and pass it with --step FILE DB: a transmitter product drops by the
 step (1 dB per dB), a product made in the receiver by about 2 or 3 dB per dB.
 
+Limits come from a limits profile (--limits; default the 'spurious' preset: 47 CFR
+97.307(d)/(e) and ITU RR Appendix 3). Its 'harmonic_dbc' rules are applied (else its
+'worst_spur_dbc' rule). Appendix 3 depends on the PEP in W: from --calibration, else
+--pep-w, else the most stringent case is assumed and said.
+
 exit status: 0 every harmonic meets every limit, 1 some harmonic is inconclusive (noise
-too high to show it), 2 some harmonic exceeds a limit, 3/4/5 as for every command.
+too high to show it) or only warns, 2 some harmonic exceeds a limit, 3/4/5 as for every
+command.
 """
 
 
@@ -32,10 +38,11 @@ def register(subparsers: Any) -> None:
     """Add the ``harmonics`` command."""
     p = subparsers.add_parser(
         "harmonics",
-        help="table of harmonics from recordings at f, 2f, 3f ... against 47 CFR 97.307 and RR Appendix 3",
+        help="table of harmonics from recordings at f, 2f, 3f ..., graded against a limits profile",
         description="Combine recordings of the fundamental and of its harmonics (same receiver settings, "
         "or a calibration) into a table of harmonic levels in dBc relative to the mean power of the "
-        "fundamental, compared with 47 CFR 97.307(d)/(e) and ITU RR Appendix 3.",
+        "fundamental, graded against a limits profile (default 'spurious': 47 CFR 97.307(d)/(e) and "
+        "ITU RR Appendix 3).",
         epilog=EPILOG,
         formatter_class=argparse.RawDescriptionHelpFormatter,
     )
@@ -50,6 +57,13 @@ def register(subparsers: Any) -> None:
         metavar=("FILE", "DB"),
         default=[],
         help="a second recording of a harmonic's band made with DB more attenuation (receiver-or-transmitter check)",
+    )
+    p.add_argument(
+        "--limits",
+        action="append",
+        metavar="FILE|NAME",
+        help="limits profile: a TOML file or a preset (iqscope limits list); repeat to combine "
+        "(later rules replace earlier ones); default: the 'spurious' preset",
     )
     p.add_argument("--json", action="store_true", help="print one JSON object on stdout")
     p.add_argument("--plot", metavar="DIR", help="write harmonics.png into DIR")
@@ -70,10 +84,13 @@ def _levels(path: str, args: argparse.Namespace) -> Any:
 
 
 def run(args: argparse.Namespace) -> int:
-    """Measure every recording, build the table, print it, return the exit status."""
+    """Measure every recording, build the table, grade it, print it, return the exit status."""
+    from ..grading import combine_profiles, grade_harmonics, load_limits
     from ..measure.harmonics import harmonics_table
 
     check_format(args.format)
+    # Limits first: a bad profile is a usage error before any recording is read.
+    limits = combine_profiles([load_limits(spec) for spec in args.limits]) if args.limits else None
     files: list[str] = []
     seen: set[str] = set()
     for f in ([args.fundamental] if args.fundamental else []) + list(args.files):
@@ -110,7 +127,8 @@ def run(args: argparse.Namespace) -> int:
     table = harmonics_table(
         fund, others, dbfs_to_dbm_db=offset, calibration_gain_db=gain, pep_w=args.pep_w, stepped=stepped
     )
-    data = table.to_json()
+    graded = grade_harmonics(table, limits)
+    data = graded.to_json()
     if args.json:
         sys.stdout.write(json.dumps(data, allow_nan=False) + "\n")
     else:
@@ -127,12 +145,7 @@ def run(args: argparse.Namespace) -> int:
             with atomic_write(target, force=args.force) as fh:
                 fh.write(png)
             print(f"iqscope: wrote {target}", file=sys.stderr)
-    comps = [c for row in table.harmonics for c in row.comparisons.values()]
-    if "exceeds" in comps:
-        return EXIT_FAIL
-    if "inconclusive" in comps:
-        return EXIT_WARN
-    return EXIT_OK
+    return graded.exit_status
 
 
 def _step_db(text: str) -> float:

@@ -6,11 +6,24 @@ rendering (see ``iqscope.report``).
 - :func:`load_limits` (preset name or file) -> :class:`LimitsProfile`
 - :func:`preset_names`, :func:`preset_text`, :func:`default_profile`
 - :func:`grade` (Analysis, LimitsProfile | None) -> :class:`GradeResult`
+- :func:`grade_harmonics` (HarmonicsTable, LimitsProfile | None) -> :class:`HarmonicsGrade`
 """
 
 from __future__ import annotations
 
 from ._advice import ARTEFACT_ADVICE, INCONCLUSIVE_ADVICE, advice_for
+from ._harmonics import (
+    HARMONIC_MEASUREMENT,
+    HARMONICS_DEFAULT_PRESET,
+    AppliedLimit,
+    Comparison,
+    HarmonicGrade,
+    HarmonicsGrade,
+    comparison,
+    grade_harmonics,
+    harmonic_rules,
+    judge_level,
+)
 from ._limits import (
     LIMITS_SCHEMA,
     MODES,
@@ -39,6 +52,16 @@ from ._verdict import (
 )
 
 __all__ = [
+    "HARMONIC_MEASUREMENT",
+    "HARMONICS_DEFAULT_PRESET",
+    "AppliedLimit",
+    "Comparison",
+    "HarmonicGrade",
+    "HarmonicsGrade",
+    "comparison",
+    "grade_harmonics",
+    "harmonic_rules",
+    "judge_level",
     "ARTEFACT_ADVICE",
     "INCONCLUSIVE_ADVICE",
     "advice_for",

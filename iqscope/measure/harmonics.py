@@ -1,4 +1,4 @@
-"""Harmonics from several recordings (f, 2f, 3f ...), against 47 CFR 97.307 and RR Appendix 3.
+"""Harmonics from several recordings (f, 2f, 3f ...): levels in dBc re the fundamental's mean power.
 
 A small receiver's recording spans a few tens of kHz to a few MHz, so the harmonics of
 an HF transmitter lie outside the recording of its fundamental. The builder records the
@@ -13,6 +13,10 @@ harmonic of a modulated signal is ``n`` times as wide), widened by a line's main
 Its mean power is the noise-subtracted PSD integrated over that band; when it is not
 detectable above the noise its level is an upper bound.
 
+This module only measures. Which limits apply (47 CFR 97.307, RR Appendix 3 ...) and
+whether a harmonic meets them is decided in :mod:`iqscope.grading` from a limits profile
+(:func:`iqscope.grading.grade_harmonics`).
+
 The receiver-or-transmitter check (:func:`attenuation_step_check`): change the
 attenuation before the receiver by a known step; a product made by the transmitter
 moves 1 dB per dB, one made in the receiver by a second-order process 2 dB per dB and
@@ -21,18 +25,16 @@ of an n-th order product is n, the standard power-series result of item 6).
 
 References
 ----------
-.. [1] 47 CFR 97.307(d) and (e) (spurious emissions of amateur stations).
-.. [2] ITU Radio Regulations, Appendix 3, and Rec. ITU-R SM.329 (category A limits):
-   amateur services below 30 MHz, 43 + 10 log10(PEP / 1 W) dB or 50 dBc, whichever is
-   less stringent; reference bandwidth 10 kHz from 150 kHz to 30 MHz.
-.. [3] ITU RR No. 1.145 (spurious emission includes harmonic emissions).
+.. [1] 47 CFR 97.307(d) and (e): spurious levels are the mean power of the emission
+   relative to the mean power of the fundamental (the dBc reference used here).
+.. [2] ITU RR No. 1.145 (spurious emission includes harmonic emissions).
 """
 
 from __future__ import annotations
 
 import math
 from collections.abc import Mapping, Sequence
-from dataclasses import dataclass, field
+from dataclasses import dataclass
 from typing import Any, Final, Literal
 
 import numpy as np
@@ -48,23 +50,16 @@ from .designator import emission_band
 from .imd import line_half_width_hz
 
 __all__ = [
-    "Comparison",
     "StepVerdict",
     "RecordingLevels",
     "HarmonicRow",
-    "LimitLine",
     "HarmonicsTable",
     "StepCheck",
-    "rr_appendix3_attenuation_db",
-    "cfr_97_307_attenuation_db",
-    "compare_to_limit",
     "attenuation_step_check",
     "analyse_levels",
     "harmonics_table",
 ]
 
-#: How a level compares with a regulatory limit (not a pass/warn/fail verdict).
-Comparison = Literal["meets", "exceeds", "inconclusive"]
 #: Outcome of the attenuation-step check.
 StepVerdict = Literal["transmitter", "receiver (2nd order)", "receiver (3rd order)", "unclear"]
 
@@ -79,49 +74,8 @@ GAIN_KEY: Final = "iqscope:gain_db"
 
 
 # --------------------------------------------------------------------------------------
-# Limits and comparisons (pure)
+# The attenuation-step check (pure)
 # --------------------------------------------------------------------------------------
-def rr_appendix3_attenuation_db(pep_w: float) -> float:
-    """Attenuation RR Appendix 3 asks of an amateur station below 30 MHz, dB.
-
-    ``min(43 + 10 log10(PEP / 1 W), 50)``: "43 + 10 log P or 50 dBc, whichever is less
-    stringent" (RR Appendix 3 / SM.329; REFERENCES.md item 5). Reaches 50 dB at 5 W.
-
-    >>> rr_appendix3_attenuation_db(5.0)
-    49.98970004336019
-    >>> rr_appendix3_attenuation_db(100.0)
-    50.0
-    """
-    if not pep_w > 0:
-        raise ValueError(f"{pep_w=} must be > 0 W")
-    return min(43.0 + 10.0 * math.log10(pep_w), 50.0)
-
-
-def cfr_97_307_attenuation_db(frequency_hz: float) -> float | None:
-    """Attenuation 47 CFR 97.307 asks of spurious emissions, dB (None above 225 MHz).
-
-    Below 30 MHz: 43 dB (97.307(d), transmitters installed after 1 January 2003).
-    30-225 MHz: 60 dB (97.307(e), first sentence; its relaxation for transmitters of
-    25 W or less mean power, 40 dB and 25 uW, is not applied here).
-    """
-    if frequency_hz < 30e6:
-        return 43.0
-    if frequency_hz <= 225e6:
-        return 60.0
-    return None
-
-
-def compare_to_limit(level_dbc: float, limited_by_noise: bool, limit_dbc: float) -> Comparison:
-    """Compare a level (dBc, negative) with a limit (dBc): meets, exceeds or inconclusive.
-
-    A noise-limited upper bound that already lies at or below the limit meets it; one
-    above the limit cannot show compliance ("inconclusive").
-    """
-    if level_dbc <= limit_dbc:
-        return "meets"
-    return "inconclusive" if limited_by_noise else "exceeds"
-
-
 @dataclass(frozen=True)
 class StepCheck:
     """Result of :func:`attenuation_step_check`."""
@@ -270,16 +224,6 @@ def _band_power(spec: Spectrum, lo: float, hi: float, noise_psd: float) -> tuple
 # The table
 # --------------------------------------------------------------------------------------
 @dataclass(frozen=True)
-class LimitLine:
-    """One regulatory limit applied to every harmonic."""
-
-    name: str
-    limit_dbc: float
-    source: str
-    assumption: str = ""
-
-
-@dataclass(frozen=True)
 class HarmonicRow:
     """One harmonic (n >= 2) or the fundamental (n = 1)."""
 
@@ -296,7 +240,6 @@ class HarmonicRow:
     """Re mean power of the fundamental, dB (negative); a bound when limited_by_noise."""
     uncertainty_db: float | None
     limited_by_noise: bool
-    comparisons: Mapping[str, Comparison] = field(default_factory=dict)
     step: StepCheck | None = None
     note: str = ""
 
@@ -312,7 +255,6 @@ class HarmonicRow:
             "uncertainty_db": _finite(self.uncertainty_db),
             "limited_by_noise": self.limited_by_noise,
             "bound": "upper" if self.limited_by_noise else None,
-            "comparisons": dict(self.comparisons),
             "attenuation_step": None
             if self.step is None
             else {"slope_db_per_db": self.step.slope, "verdict": self.step.verdict, "note": self.step.note},
@@ -326,10 +268,12 @@ class HarmonicsTable:
 
     fundamental: HarmonicRow
     harmonics: tuple[HarmonicRow, ...]
-    limits: tuple[LimitLine, ...]
     fundamental_mean_dbfs: float
     pep_dbfs: float
     pep_w: float | None
+    """PEP in W: from the calibrated envelope peak, else as given, else None."""
+    pep_source: str
+    """Where ``pep_w`` comes from: "calibrated envelope peak", "given" or "" (unknown)."""
     assumptions: tuple[str, ...]
     worst: HarmonicRow | None
 
@@ -340,10 +284,7 @@ class HarmonicsTable:
             "fundamental_mean_dbfs": self.fundamental_mean_dbfs,
             "pep_dbfs": self.pep_dbfs,
             "pep_w": _finite(self.pep_w),
-            "limits": [
-                {"name": lim.name, "limit_dbc": lim.limit_dbc, "source": lim.source, "assumption": lim.assumption}
-                for lim in self.limits
-            ],
+            "pep_source": self.pep_source,
             "harmonics": [h.to_json() for h in self.harmonics],
             "worst_harmonic_dbc": None if self.worst is None else _finite(self.worst.level_dbc),
             "assumptions": list(self.assumptions),
@@ -363,7 +304,9 @@ def harmonics_table(
     pep_w: float | None = None,
     stepped: Mapping[int, tuple[RecordingLevels, float]] | None = None,
 ) -> HarmonicsTable:
-    """Combine a fundamental and harmonic recordings into a table against the limits.
+    """Combine a fundamental and harmonic recordings into a table of harmonic levels.
+
+    Measures only; grade the table with :func:`iqscope.grading.grade_harmonics`.
 
     Parameters
     ----------
@@ -376,7 +319,8 @@ def harmonics_table(
     calibration_gain_db : float, optional
         Receiver gain the calibration was made at (to correct a different gain).
     pep_w : float, optional
-        PEP in watts for RR Appendix 3 when no calibration is given.
+        PEP in watts, recorded in the table when no calibration is given (the grading of
+        power-dependent limits such as RR Appendix 3 uses it).
     stepped : mapping n -> (RecordingLevels, step_db), optional
         For harmonic n, a second recording with ``step_db`` more attenuation: runs
         :func:`attenuation_step_check` on the harmonic.
@@ -415,39 +359,13 @@ def harmonics_table(
             corr = gain - calibration_gain_db
         return dbfs - corr + dbfs_to_dbm_db
 
-    # PEP in watts for RR Appendix 3.
+    # PEP in watts: the calibrated envelope peak wins over a given value.
     pep_dbm = to_dbm(pep_dbfs, fundamental.gain_db)
     if pep_dbm is not None and math.isfinite(pep_dbm):
         pep_w = 10.0 ** ((pep_dbm - 30.0) / 10.0)
-        app3_assume = f"PEP {pep_w:.3g} W from the calibrated envelope peak"
-    elif pep_w is not None:
-        app3_assume = f"PEP {pep_w:.3g} W as given"
+        pep_source = "calibrated envelope peak"
     else:
-        app3_assume = "PEP unknown: assumed 5 W or more, so the most stringent 50 dB applies"
-        assumptions.append(app3_assume)
-    att_app3 = rr_appendix3_attenuation_db(pep_w) if pep_w is not None else 50.0
-    limits: list[LimitLine] = []
-    att_cfr = cfr_97_307_attenuation_db(f1)
-    if att_cfr is not None:
-        limits.append(
-            LimitLine(
-                "47 CFR 97.307(d)" if f1 < 30e6 else "47 CFR 97.307(e)",
-                -att_cfr,
-                "mean power of any spurious emission at least "
-                f"{att_cfr:.0f} dB below the mean power of the fundamental",
-            )
-        )
-    if f1 < 30e6:
-        limits.append(
-            LimitLine(
-                "RR Appendix 3",
-                -att_app3,
-                "43 + 10 log10(PEP/W) dB or 50 dBc, whichever is less stringent (amateur, below 30 MHz)",
-                app3_assume,
-            )
-        )
-    else:
-        assumptions.append("RR Appendix 3 amateur row applies below 30 MHz only; not applied")
+        pep_source = "given" if pep_w is not None else ""
 
     fund_row = HarmonicRow(
         n=1,
@@ -469,7 +387,7 @@ def harmonics_table(
 
     rows: list[HarmonicRow] = []
     for rec in sorted(others, key=lambda r: r.center_frequency_hz):
-        rows.append(_harmonic_row(rec, f1, lo_abs, hi_abs, h, fundamental, fund_dbfs, limits, to_dbm, stepped))
+        rows.append(_harmonic_row(rec, f1, lo_abs, hi_abs, h, fundamental, fund_dbfs, to_dbm, stepped))
     worst = max(
         (r for r in rows if r.level_dbc is not None),
         key=lambda r: r.level_dbc if r.level_dbc is not None else -math.inf,
@@ -478,10 +396,10 @@ def harmonics_table(
     return HarmonicsTable(
         fundamental=fund_row,
         harmonics=tuple(rows),
-        limits=tuple(limits),
         fundamental_mean_dbfs=fund_dbfs,
         pep_dbfs=pep_dbfs,
         pep_w=pep_w,
+        pep_source=pep_source,
         assumptions=tuple(assumptions),
         worst=worst,
     )
@@ -495,7 +413,6 @@ def _harmonic_row(
     h: float,
     fundamental: RecordingLevels,
     fund_dbfs: float,
-    limits: Sequence[LimitLine],
     to_dbm: Any,
     stepped: Mapping[int, tuple[RecordingLevels, float]] | None,
 ) -> HarmonicRow:
@@ -526,7 +443,6 @@ def _harmonic_row(
     dbfs = 10.0 * math.log10(power) - gain_corr
     dbc = dbfs - fund_dbfs
     unc = math.hypot(10.0 * math.log10(1.0 + sigma / power), RECEIVER_FLATNESS_DB) if detected else None
-    comps = {lim.name: compare_to_limit(dbc, not detected, lim.limit_dbc) for lim in limits}
     step = None
     if stepped and n in stepped:
         other, step_db = stepped[n]
@@ -551,7 +467,6 @@ def _harmonic_row(
         level_dbc=dbc,
         uncertainty_db=unc,
         limited_by_noise=not detected,
-        comparisons=comps,
         step=step,
         note=note,
     )

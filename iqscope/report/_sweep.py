@@ -32,8 +32,14 @@ __all__ = [
     "render_sweep_png",
 ]
 
-_COMPARISON_STYLE = {"meets": "iqscope.pass", "exceeds": "iqscope.fail", "inconclusive": "iqscope.warn"}
-_COMPARISON_WORD = {"meets": "meets", "exceeds": "EXCEEDS", "inconclusive": "inconclusive (noise)"}
+_COMPARISON_STYLE = {
+    "meets": "iqscope.pass",
+    "exceeds": "iqscope.fail",
+    "inconclusive": "iqscope.warn",
+    "warn": "iqscope.warn",
+}
+_COMPARISON_WORD = {"meets": "meets", "exceeds": "EXCEEDS", "inconclusive": "inconclusive (noise)", "warn": "WARN"}
+_OVERALL_STYLE = {"pass": "iqscope.pass", "warn": "iqscope.warn", "fail": "iqscope.fail"}
 
 
 def _level(row: Mapping[str, Any], key: str, unit: str, ascii_only: bool) -> str:
@@ -47,7 +53,10 @@ def _level(row: Mapping[str, Any], key: str, unit: str, ascii_only: bool) -> str
 
 
 def harmonics_renderable(data: Mapping[str, Any], *, ascii_only: bool = False) -> RenderableType:
-    """The harmonics table: n, frequency, level in dBFS / dBm / dBc, comparison per limit."""
+    """The harmonics table: n, frequency, level in dBFS / dBm / dBc, verdict per limit.
+
+    The verdicts (``comparisons``, ``overall``) come from grading; this only shows them.
+    """
     limits: Sequence[Mapping[str, Any]] = data.get("limits", [])
     fund = data["fundamental"]
     table = Table(title="Harmonics re mean power of the fundamental", title_justify="left")
@@ -70,14 +79,25 @@ def harmonics_renderable(data: Mapping[str, Any], *, ascii_only: bool = False) -
         ]
         for lim in limits:
             comp = row.get("comparisons", {}).get(lim["name"])
-            if comp is None:
+            if comp not in _COMPARISON_WORD:
                 cells.append("")
             else:
                 cells.append(Text(_COMPARISON_WORD[comp], style=_COMPARISON_STYLE[comp]))
         cells.append(str(row.get("path", "")))
         table.add_row(*cells)
-    parts: list[RenderableType] = [table]
+    parts: list[RenderableType] = []
+    profile = data.get("limits_profile")
+    if profile:
+        head = Text("limits  ", style="iqscope.muted")
+        head.append(str(profile.get("name", "")))
+        if profile.get("default"):
+            head.append("  (default for harmonics)", style="iqscope.muted")
+        parts.append(head)
+    parts.append(table)
     bullet = "-" if ascii_only else "\u2022"
+    overall = data.get("overall")
+    if overall in _OVERALL_STYLE:
+        parts.append(Text(f"overall  {overall.upper()}", style=_OVERALL_STYLE[overall]))
     for lim in limits:
         line = f"{bullet} {lim['name']}: {lim['source']}"
         if lim.get("assumption"):
@@ -91,6 +111,8 @@ def harmonics_renderable(data: Mapping[str, Any], *, ascii_only: bool = False) -
             parts.append(Text(f"{bullet} harmonic {row['n']}: {row['note']}", style="iqscope.muted"))
     for a in data.get("assumptions", []):
         parts.append(Text(f"{bullet} assumed: {a}", style="iqscope.muted"))
+    for why in data.get("not_graded", []):
+        parts.append(Text(f"{bullet} not graded: {why}", style="iqscope.muted"))
     return Group(*parts)
 
 
@@ -118,7 +140,8 @@ def harmonics_figure(data: Mapping[str, Any]) -> Figure:
     ax.set_ylabel("level re mean power of fundamental (dBc)")
     ax.set_xticks(ns or [2])
     ax.set_title("Harmonics (grey: noise-limited upper bound)")
-    ax.legend(loc="lower right", fontsize=8)
+    if data.get("limits"):
+        ax.legend(loc="lower right", fontsize=8)
     ax.grid(True, axis="y", alpha=0.3)
     return fig
 
