@@ -272,3 +272,64 @@ class TestCommand:
         assert main(["harmonics", h2, other_spelling, "--fundamental", f, "--json"]) == EXIT_OK
         out = json.loads(capsys.readouterr().out)
         assert [h["n"] for h in out["harmonics"]] == [2]
+
+
+class TestGrading:
+    """grade_harmonics: limits from the profile, verdicts in grading (DESIGN.md layers)."""
+
+    def test_vhf_fundamental_uses_97_307_e(self, rng: np.random.Generator) -> None:
+        """A 50.1 MHz fundamental: 47 CFR 97.307(e) asks 60 dB (REFERENCES.md item 5), so a
+        -55 dBc second harmonic exceeds it; RR Appendix 3's amateur row (below 30 MHz) and
+        97.307(d) are not applied and say why."""
+        f1 = 50.1e6
+        fund = ArrayRecording(_line_recording(rng, f1 - 5000, f1, 0.0), FS, f1 - 5000)
+        h2 = ArrayRecording(_line_recording(rng, 2 * f1 - 5000, 2 * f1, -55.0), FS, 2 * f1 - 5000)
+        graded = grade_harmonics(harmonics_table(analyse_levels(fund), [analyse_levels(h2)]))
+        assert [lim.name for lim in graded.limits] == ["47 CFR 97.307(e)"]
+        assert graded.limits[0].limit_dbc == -60.0
+        assert graded.harmonics[0].comparisons == {"47 CFR 97.307(e)": "exceeds"}
+        assert graded.exit_status == EXIT_FAIL
+        assert any(s.startswith("RR Appendix 3: applies to fundamentals below 30 MHz") for s in graded.skipped)
+
+    def test_calibrated_pep_resolves_appendix3(self, rng: np.random.Generator) -> None:
+        """Calibrated PEP 5.0 W (see test_calibrated_levels_in_dbm): App. 3 asks
+        43 + 10 log10(5) = 49.99 dB (REFERENCES.md item 5); -55 dBc meets it."""
+        lv = [analyse_levels(r) for r in _set(rng, {2: -55.0})]
+        graded = grade_harmonics(harmonics_table(lv[0], lv[1:], dbfs_to_dbm_db=57.0))
+        app3 = next(lim for lim in graded.limits if lim.name == "RR Appendix 3")
+        assert app3.limit_dbc == pytest.approx(-49.99, abs=0.05)  # 5 % in PEP is 0.2 dB: see tolerance above
+        assert "calibrated envelope peak" in app3.assumption
+        assert not graded.limit_assumptions and graded.exit_status == EXIT_OK
+
+    def test_profile_without_harmonic_rules_uses_worst_spur(self, rng: np.random.Generator) -> None:
+        """home-built has no harmonic_dbc rule: its worst_spur_dbc rule (pass <= -43 dBc,
+        47 CFR 97.307(d); warn <= -40, common practice) grades harmonics: -41.5 dBc warns."""
+        lv = [analyse_levels(r) for r in _set(rng, {2: -41.5})]
+        graded = grade_harmonics(harmonics_table(lv[0], lv[1:]), load_limits("home-built"))
+        assert [lim.name for lim in graded.limits] == ["worst_spur_dbc"]
+        assert graded.harmonics[0].comparisons == {"worst_spur_dbc": "warn"}
+        assert graded.overall == "warn" and graded.exit_status == EXIT_WARN
+
+    def test_cli_limits_option(self, tmp_path: Path, rng: np.random.Generator, capsys: pytest.CaptureFixture[str]) -> None:
+        """--limits NAME|FILE: the same -45 dBc harmonic fails the default (spurious, App. 3
+        at an assumed >= 5 W), passes home-built (97.307(d) 43 dB), warns under a file with
+        pass <= -50, warn <= -40 dBc; a missing profile is a limits error (exit 4, one line)."""
+        f = _write(tmp_path, "fund", _line_recording(rng, F1 - 5000, F1, 0.0), F1 - 5000)
+        h2 = _write(tmp_path, "h2", _line_recording(rng, 2 * F1 - 5000, 2 * F1, -45.0), 2 * F1 - 5000)
+        assert main(["harmonics", f, h2, "--json"]) == EXIT_FAIL
+        out = json.loads(capsys.readouterr().out)
+        assert out["limits_profile"]["name"] == "spurious" and out["limits_profile"]["default"]
+        assert out["overall"] == "fail" and out["harmonics"][0]["status"] == "fail"
+        assert {v["limit_name"] for v in out["harmonics"][0]["verdicts"]} == {"47 CFR 97.307(d)", "RR Appendix 3"}
+        assert main(["harmonics", f, h2, "--limits", "home-built", "--json"]) == EXIT_OK
+        capsys.readouterr()
+        mine = tmp_path / "mine.toml"
+        mine.write_text(
+            '[[rule]]\nmeasurement = "harmonic_dbc"\nlabel = "bench"\n'
+            'pass = { max = -50.0 }\nwarn = { max = -40.0 }\nunit = "dBc"\n'
+        )
+        assert main(["harmonics", f, h2, "--limits", str(mine)]) == EXIT_WARN
+        text = capsys.readouterr().out
+        assert "bench" in text and "WARN" in text and "mine" in text
+        assert main(["harmonics", f, h2, "--limits", "nosuch"]) == 4
+        assert "no limits file or preset named 'nosuch'" in capsys.readouterr().err

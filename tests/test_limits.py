@@ -199,3 +199,89 @@ def test_home_built_spur_limit_is_97_307_d() -> None:
         assert rule.unit == "dBc" and "97.307(d)" in rule.source
         assert rule.warn_bound is not None and -43.0 < rule.warn_bound.max <= -30.0
     assert "97.307(d)" in preset_text("home-built")
+
+
+# -- power-dependent limits, labels and fundamental ranges (schema extension) ---------------
+
+_APP3 = """
+[[rule]]
+measurement = "harmonic_dbc"
+label = "RR Appendix 3"
+pep_attenuation = { at_1w_db = 43.0, per_decade_db = 10.0, cap_db = 50.0 }
+unit = "dBc"
+"""
+
+
+@pytest.mark.parametrize(
+    ("pep_w", "uncapped", "asked"),
+    [(5.0, 50.0, 50.0), (100.0, 63.0, 50.0), (1000.0, 73.0, 50.0), (1.0, 43.0, 43.0)],
+)
+def test_pep_attenuation_worked_values(pep_w: float, uncapped: float, asked: float) -> None:
+    """REFERENCES.md item 5 (worked values, computed from RR Appendix 3 / SM.329 for amateur
+    stations below 30 MHz, "43 + 10 log10(PEP) dB or 50 dBc, whichever is less stringent"):
+    5 W -> 43 + 7.0 = 50.0 dB; 100 W -> 63 dB uncapped, capped at 50; 1 kW -> 73 dB uncapped.
+    1 W -> 43 dB (10 log10 1 = 0). Tolerance 0.02 dB: 10 log10 5 = 6.9897, printed as 7.0."""
+    rule = parse_limits(_APP3, "a3.toml").rules[0]
+    pep = rule.pep_attenuation
+    assert pep is not None
+    assert pep.uncapped_db(pep_w) == pytest.approx(uncapped, abs=0.02)
+    assert pep.attenuation_db(pep_w) == pytest.approx(asked, abs=0.02)
+    assert rule.at_pep(pep_w).pass_bound.max == pytest.approx(-asked, abs=0.02)
+
+
+def test_pep_attenuation_unknown_power_takes_the_cap() -> None:
+    """Without a PEP the most stringent value the rule can ask is its cap (50 dB)."""
+    rule = parse_limits(_APP3, "a3.toml").rules[0]
+    assert rule.pass_bound.max == -50.0  # stand-in before resolving
+    assert rule.at_pep(None).pass_bound.max == -50.0
+    assert rule.to_json()["pep_attenuation"] == {"at_1w_db": 43.0, "per_decade_db": 10.0, "cap_db": 50.0}
+
+
+@pytest.mark.parametrize(
+    ("extra", "message"),
+    [
+        ("pass = { max = -43.0 }", "leave out 'pass'"),
+        ("warn = { max = -40.0 }", "leave out 'pass' and 'warn'"),
+    ],
+)
+def test_pep_attenuation_replaces_pass(extra: str, message: str) -> None:
+    with pytest.raises(LimitsError, match=message):
+        parse_limits(_APP3 + extra + "\n", "a3.toml")
+
+
+@pytest.mark.parametrize(
+    ("table", "message"),
+    [
+        ("{ at_1w_db = 43.0, per_decade_db = 10.0 }", "pep_attenuation.cap_db' is missing"),
+        ("{ at_1w_db = 43.0, per_decade_db = 10.0, cap_db = 'fifty' }", "must be a finite number"),
+        ("{ at_1w_db = 43.0, per_decade_db = 10.0, cap_db = 50.0, floor = 1 }", "unknown key 'pep_attenuation.floor'"),
+        ("43.0", "must be a table"),
+    ],
+)
+def test_pep_attenuation_errors_name_the_key(table: str, message: str) -> None:
+    text = f'[[rule]]\nmeasurement = "harmonic_dbc"\npep_attenuation = {table}\n'
+    with pytest.raises(LimitsError, match=message) as info:
+        parse_limits(text, "bad.toml")
+    assert "bad.toml" in str(info.value)
+
+
+def test_labels_make_separate_limits_and_duplicates_are_errors() -> None:
+    two = (
+        '[[rule]]\nmeasurement = "harmonic_dbc"\nlabel = "A"\npass = { max = -43.0 }\n'
+        '[[rule]]\nmeasurement = "harmonic_dbc"\nlabel = "B"\npass = { max = -50.0 }\n'
+    )
+    profile = parse_limits(two, "two.toml")
+    assert [r.label for r in profile.rules] == ["A", "B"]
+    with pytest.raises(LimitsError, match="with label 'A'"):
+        parse_limits(two.replace('"B"', '"A"'), "dup.toml")
+
+
+def test_fundamental_range_is_half_open() -> None:
+    """47 CFR 97.307(d) covers fundamentals below 30 MHz, (e) 30-225 MHz: at exactly 30 MHz
+    only (e) applies (the upper end of a range is open, so adjacent ranges do not overlap)."""
+    rules = {r.label: r for r in load_limits("spurious").rules if r.label}
+    d, e = rules["47 CFR 97.307(d)"], rules["47 CFR 97.307(e)"]
+    assert d.applies_at(29.999e6) and not d.applies_at(30e6)
+    assert e.applies_at(30e6) and e.applies_at(224.9e6) and not e.applies_at(225e6)
+    assert -d.pass_bound.max == 43.0 and -e.pass_bound.max == 60.0  # 97.307(d), (e)
+    assert rules["RR Appendix 3"].pep_attenuation is not None

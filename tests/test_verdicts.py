@@ -310,3 +310,13 @@ def test_every_figure_a_limit_can_grade_has_advice() -> None:
     ]
     for key in actionable:
         assert advice_for(key, "usb"), key
+
+
+def test_harmonic_rules_are_not_graded_on_one_recording() -> None:
+    """The spurious preset's harmonic_dbc rules need recordings at 2f, 3f ...: `grade` lists
+    them under "not graded" instead of warning "not measured" (47 CFR 97.307(d): -52 dBc
+    still passes the worst_spur_dbc rule)."""
+    a = analysis_with("usb", {"worst_spur_dbc": Measurement(-52.0, "dBc", 0.3)})
+    r = grade(a, load_limits("spurious"))
+    assert r.overall == "pass" and [v.measurement for v in r.verdicts] == ["worst_spur_dbc"]
+    assert any(s.startswith("harmonic_dbc: graded by 'iqscope harmonics'") for s in r.skipped)
