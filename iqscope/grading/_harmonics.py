@@ -136,9 +136,11 @@ def _range(rule: Rule) -> str:
     b = rule.fundamental_hz
     if b is None:
         return "at any frequency"
-    lo = "" if b.min is None else f"from {b.min / 1e6:g} MHz "
-    hi = "" if b.max is None else f"below {b.max / 1e6:g} MHz"
-    return (lo + hi).strip()
+    if b.min is not None and b.max is not None:
+        return f"{b.min / 1e6:g}-{b.max / 1e6:g} MHz"
+    if b.min is not None:
+        return f"from {b.min / 1e6:g} MHz"
+    return f"below {b.max / 1e6:g} MHz" if b.max is not None else "at any frequency"
 
 
 def _round2(x: float) -> str:

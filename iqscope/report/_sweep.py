@@ -99,7 +99,10 @@ def harmonics_renderable(data: Mapping[str, Any], *, ascii_only: bool = False) -
     if overall in _OVERALL_STYLE:
         parts.append(Text(f"overall  {overall.upper()}", style=_OVERALL_STYLE[overall]))
     for lim in limits:
-        line = f"{bullet} {lim['name']}: {lim['source']}"
+        source = str(lim.get("source", ""))
+        if source.startswith(f"{lim['name']}:"):  # a source that starts by citing the limit's name
+            source = source[len(lim["name"]) + 1 :].lstrip()
+        line = f"{bullet} {lim['name']}: {source}"
         if lim.get("assumption"):
             line += f" ({lim['assumption']})"
         parts.append(Text(line, style="iqscope.note"))
@@ -109,7 +112,10 @@ def harmonics_renderable(data: Mapping[str, Any], *, ascii_only: bool = False) -
             parts.append(Text(f"{bullet} harmonic {row['n']}, attenuation step: {step['note']}", style="iqscope.advice"))
         if row.get("note"):
             parts.append(Text(f"{bullet} harmonic {row['n']}: {row['note']}", style="iqscope.muted"))
+    shown = [str(lim.get("assumption")) for lim in limits if lim.get("assumption")]
     for a in data.get("assumptions", []):
+        if any(str(a).endswith(text) for text in shown):  # already beside its limit
+            continue
         parts.append(Text(f"{bullet} assumed: {a}", style="iqscope.muted"))
     for why in data.get("not_graded", []):
         parts.append(Text(f"{bullet} not graded: {why}", style="iqscope.muted"))
