@@ -686,8 +686,8 @@ class TestCapturedBands:
         every 40 s), a pair, and a stable reference line. Tolerance 1e-5 Hz: ~1e-7
         relative rounding of the filtered samples moves a 0.5-s estimate by far less."""
         from iqscope.dsp._spectrum import SpectrumAccumulator, SubbandCapture
-        from iqscope.measure import drift as drift_mod
         from iqscope.measure.drift import LinePlan, track_bands
+        from iqscope.measure.drift import _bands as bands_mod  # where track_bands looks up _run_bands
 
         fs = 48_000.0
         t = np.arange(int(fs * 100)) / fs
@@ -711,7 +711,7 @@ class TestCapturedBands:
         for plan, stable in cases:
             a = track_bands(bands, plan, block_s=0.5, span_hz=20.0, stable_line_hz=stable)
             with monkeypatch.context() as mp:
-                mp.setattr(drift_mod, "_run_bands", one_by_one)
+                mp.setattr(bands_mod, "_run_bands", one_by_one)
                 b = track_bands(bands, plan, block_s=0.5, span_hz=20.0, stable_line_hz=stable)
             assert a is not None and b is not None and a.n_blocks == b.n_blocks > 150
             assert np.array_equal(a.valid, b.valid) and np.array_equal(a.times_s, b.times_s)

@@ -240,7 +240,7 @@ def test_labels_and_json_doc_cover_every_key_the_providers_write() -> None:
 
     root = Path(iqscope.measure.__file__).parent
     found: set[str] = set()
-    for src in root.glob("*.py"):
+    for src in root.rglob("*.py"):  # rglob: measure/drift/ is a package
         text = src.read_text(encoding="utf-8")
         found |= set(re.findall(r"""(?:measurements|ms)\[["']([a-z0-9_]+)["']\]\s*=""", text))
         if 'f"imd{order}_dbc"' in text:

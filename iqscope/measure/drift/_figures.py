@@ -1,0 +1,400 @@
+"""Figures from a frequency track: :class:`DriftResult` and :func:`drift_measurements`
+(offset, slope, peak-to-peak, worst window, settling, Allan deviation).
+
+References
+----------
+.. [1] W. J. Riley, *Handbook of Frequency Stability Analysis*, NIST SP 1065, 2008
+   (overlapping Allan deviation, eq. 11).
+"""
+
+from __future__ import annotations
+
+import math
+from collections import deque
+from collections.abc import Mapping
+from dataclasses import dataclass, field
+from typing import Any
+
+import numpy as np
+import numpy.typing as npt
+
+from ...dsp._allan import AllanResult, oadev
+from .._analysis import Trace
+from .._result import Measurement, failed
+from ._constants import (
+    ADEV_QUOTE_TAU_S,
+    DEFAULT_SETTLE_BAND_HZ,
+    DEFAULT_WINDOW_S,
+    MIN_BLOCKS,
+    NOTE_INCLUDES_RECEIVER,
+    NOTE_RELATIVE,
+)
+from ._tracker import FrequencyTrack
+
+
+# --------------------------------------------------------------------------------------
+# Figures
+# --------------------------------------------------------------------------------------
+@dataclass(frozen=True)
+class DriftResult:
+    """A track and the figures drawn from it."""
+
+    track: FrequencyTrack
+    measurements: Mapping[str, Measurement]
+    allan: AllanResult | None = None
+    """Overlapping ADEV of fractional frequency (None when the RF frequency is unknown)."""
+    fit: tuple[float, float] | None = None
+    """Regression line of the reference frequency: (intercept Hz at t = 0, slope Hz/s)."""
+    nominal_offset_hz: float = 0.0
+    """The nominal carrier (Hz offset) the trace and ``frequency_error_hz`` are measured
+    from (0: the capture centre, no nominal given)."""
+    warnings: tuple[str, ...] = ()
+    details: Mapping[str, Any] = field(default_factory=dict)
+
+    def frequency_trace(self) -> Trace:
+        """Time versus reference-frequency offset, for plots."""
+        t, f, s = self.track.corrected()
+        return Trace(
+            x=t,
+            y=f - self.nominal_offset_hz,
+            x_label="time (s)",
+            y_label="frequency offset (Hz)" if self.nominal_offset_hz == 0.0 else "frequency error from nominal (Hz)",
+            extra={
+                "sigma": s,
+                "fit": self.fit,
+                "nominal_offset_hz": self.nominal_offset_hz,
+                "block_s": self.track.block_s,
+                "what": self.track.plan.description,
+                "relative": self.track.stable_hz is not None,
+                "settling_s": (self.measurements.get("warmup_settling_s") or failed("s", "")).value,
+                "key_down_s": self.details.get("key_down_s"),
+            },
+        )
+
+    def allan_trace(self) -> Trace | None:
+        """tau versus ADEV (with error bars in ``extra``), for plots."""
+        if self.allan is None or self.allan.taus_s.size == 0:
+            return None
+        return Trace(
+            x=self.allan.taus_s,
+            y=self.allan.deviation,
+            x_label="averaging time tau (s)",
+            y_label="overlapping Allan deviation",
+            extra={"error": self.allan.error, "n": self.allan.n_terms},
+        )
+
+
+def _slope(t: npt.NDArray[np.float64], f: npt.NDArray[np.float64]) -> tuple[float, float, float, float]:
+    """OLS slope (Hz/s), intercept, standard error of the slope and lag-1 residual correlation.
+
+    The standard error is inflated by sqrt((1 + rho) / (1 - rho)) for positively
+    correlated residuals (effective sample size of an AR(1) series; from memory:
+    common practice in regression on time series).
+    """
+    n = t.size
+    tm = float(t.mean())
+    dt = t - tm
+    sxx = float(np.sum(dt * dt))
+    slope = float(np.sum(dt * (f - f.mean()))) / sxx
+    icpt = float(f.mean()) - slope * tm
+    r = f - (icpt + slope * t)
+    s2 = float(np.sum(r * r)) / max(n - 2, 1)
+    se = math.sqrt(s2 / sxx)
+    rr = float(np.sum(r * r))
+    rho = float(np.sum(r[1:] * r[:-1])) / rr if rr > 0 and n > 3 else 0.0
+    if rho > 0:
+        rho = min(rho, 1.0 - 2.0 / n)  # keep n_eff >= ~1
+        se *= math.sqrt((1 + rho) / (1 - rho))
+    return slope, icpt, se, rho
+
+
+def _window_excursion(t: npt.NDArray[np.float64], f: npt.NDArray[np.float64], w: float) -> tuple[float, float]:
+    """Largest max - min within any window of length ``w`` seconds, and its start time."""
+    w = max(w, 0.0)  # a window shorter than the spacing holds one point at a time
+    best, best_t = 0.0, float(t[0])
+    dq_max: deque[int] = deque()
+    dq_min: deque[int] = deque()
+    lo = 0
+    for hi in range(t.size):
+        while dq_max and f[dq_max[-1]] <= f[hi]:
+            dq_max.pop()
+        dq_max.append(hi)
+        while dq_min and f[dq_min[-1]] >= f[hi]:
+            dq_min.pop()
+        dq_min.append(hi)
+        while t[hi] - t[lo] > w:
+            lo += 1
+            if dq_max[0] < lo:
+                dq_max.popleft()
+            if dq_min[0] < lo:
+                dq_min.popleft()
+        exc = float(f[dq_max[0]] - f[dq_min[0]])
+        if exc > best:
+            best, best_t = exc, float(t[lo])
+    return best, best_t
+
+
+def _noise_pp(n: int, sigma: float) -> float:
+    """Expected max - min of n independent N(0, sigma^2): ~ 2 sigma sqrt(2 ln n)."""
+    return 2.0 * sigma * math.sqrt(2.0 * math.log(max(n, 2)))
+
+
+def _longest_run(mask: npt.NDArray[np.bool_]) -> tuple[int, int]:
+    best = (0, 0)
+    start = None
+    for i, v in enumerate(list(mask) + [False]):
+        if v and start is None:
+            start = i
+        elif not v and start is not None:
+            if i - start > best[1] - best[0]:
+                best = (start, i)
+            start = None
+    return best
+
+
+def drift_measurements(
+    track: FrequencyTrack,
+    *,
+    nominal_offset_hz: float | None = None,
+    window_s: float = DEFAULT_WINDOW_S,
+    settle_band_hz: float = DEFAULT_SETTLE_BAND_HZ,
+) -> DriftResult:
+    """The drift figures of a track (definitions in ``docs/drift.md``).
+
+    Parameters
+    ----------
+    track : FrequencyTrack
+        From :func:`track_frequency` or :class:`LineTracker`.
+    nominal_offset_hz : float, optional
+        Where the carrier should be, Hz offset (the user's ``--carrier``). When given,
+        ``frequency_error_hz`` (mean frequency minus it) is added and the trace is drawn
+        relative to it. ``frequency_offset_hz`` is always from the capture centre.
+    window_s : float
+        Window for ``drift_worst_window_hz``, s.
+    settle_band_hz : float
+        Half-width of the settling band, Hz (widened to 5 sigma of one block if larger).
+
+    Returns
+    -------
+    DriftResult
+
+    Notes
+    -----
+    - ``drift_hz_per_min``: least-squares slope of the reference frequency against time,
+      x 60; its standard error from the residual scatter, inflated for correlated
+      residuals by ``sqrt((1 + rho1)/(1 - rho1))`` (lag-1 autocorrelation rho1).
+    - ``drift_peak_to_peak_hz``: max - min of the per-block frequency over the whole
+      track. Noise adds about ``2 sigma sqrt(2 ln n)``; when the value is within 1.5x
+      of that it is flagged as noise-limited (an upper bound).
+    - ``allan_deviation``: overlapping ADEV (NIST SP 1065 eq. 11) of fractional frequency
+      ``y = (f - mean f) / f_RF`` at octave taus from the block length, on the longest run
+      of usable blocks; value at the octave tau nearest 10 s.
+    """
+    if not window_s > 0:
+        raise ValueError(f"{window_s=} must be > 0")
+    warnings: list[str] = []
+    nominal = 0.0 if nominal_offset_hz is None else float(nominal_offset_hz)
+    t, f, s = track.corrected()
+    names = ("frequency_offset_hz", "drift_hz_per_min", "drift_peak_to_peak_hz",
+             "drift_worst_window_hz", "warmup_settling_s")
+    units = ("Hz", "Hz/min", "Hz", "Hz", "s")
+    relative = track.stable_hz is not None
+    rel_note = NOTE_RELATIVE if relative else NOTE_INCLUDES_RECEIVER
+    details: dict[str, Any] = {}
+    if t.size < MIN_BLOCKS:
+        why = (f"only {t.size} of {track.n_blocks} blocks had the line above the noise "
+               f"(need {MIN_BLOCKS})")
+        nulls = {nm: failed(u, f"not measured: {why}.") for nm, u in zip(names, units)}
+        if track.center_frequency_hz is not None:
+            nulls["allan_deviation"] = failed("1", f"not measured: {why}.")
+        return DriftResult(track, nulls, None, None, nominal, (why,), details)
+
+    T = track.block_s
+    sig_med = float(np.median(s))
+    what = track.plan.description
+    ms: dict[str, Measurement] = {}
+
+    # --- offset ---------------------------------------------------------------------
+    mean_f = float(np.mean(f))
+    if track.plan.kind in ("carrier", "carrier leak", "sideband pair"):
+        where = "the carrier"
+    elif track.plan.kind == "tone" and track.plan.carrier_shift_hz is not None:
+        where = "the carrier (tone line minus the tone's audio frequency)"
+    else:
+        where = "the followed line"
+    if track.plan.kind == "tone" and track.plan.carrier_shift_hz is None:
+        why = "not measured: the SSB tone's audio frequency is unknown (give --tone)."
+        ms["frequency_offset_hz"] = failed("Hz", why)
+        if nominal_offset_hz is not None:
+            ms["frequency_error_hz"] = failed("Hz", why)
+    else:
+        u_stat = math.sqrt(float(np.sum(s * s))) / s.size
+        cal = (
+            " The receiver's frequency error is removed using the stable line's stated frequency."
+            if relative and track.stable_is_absolute
+            else " Excludes the receiver's own frequency calibration error (its reference oscillator)."
+        )
+        absolute = (track.center_frequency_hz + mean_f) if track.center_frequency_hz is not None else None
+        det: dict[str, Any] = {}
+        if absolute is not None:
+            det["mean_frequency_hz"] = absolute
+        ms["frequency_offset_hz"] = Measurement(
+            value=mean_f,
+            unit="Hz",
+            uncertainty=u_stat,
+            note=f"Time-mean frequency of {where} minus the capture centre, from {what}.{cal}",
+            details=det,
+        )
+        if nominal_offset_hz is not None:
+            ms["frequency_error_hz"] = Measurement(
+                value=mean_f - nominal,
+                unit="Hz",
+                uncertainty=u_stat,
+                note=f"Time-mean frequency of {where} minus the nominal carrier (--carrier).{cal}",
+                details=dict(det, nominal_offset_hz=nominal),
+            )
+
+    # --- slope ----------------------------------------------------------------------
+    slope, icpt, se, rho = _slope(t, f)
+    ms["drift_hz_per_min"] = Measurement(
+        value=slope * 60.0,
+        unit="Hz/min",
+        uncertainty=se * 60.0,
+        note=(f"Least-squares slope of the frequency of {where} over {t[-1] - t[0] + T:.0f} s "
+              f"({t.size} blocks of {T:g} s); standard error from the residuals"
+              + (f", widened for their correlation (rho={rho:.2f})" if rho > 0.05 else "")
+              + "." + rel_note),
+        details={"intercept_hz": icpt - nominal, "residual_lag1_correlation": rho},
+    )
+
+    # --- peak to peak ---------------------------------------------------------------
+    pp = float(f.max() - f.min())
+    noise_pp = _noise_pp(f.size, sig_med)
+    pp_noise = pp <= 1.5 * noise_pp
+    ms["drift_peak_to_peak_hz"] = Measurement(
+        value=pp,
+        unit="Hz",
+        uncertainty=math.sqrt(2.0) * sig_med,
+        limited_by_noise=pp_noise,
+        bound="upper" if pp_noise else None,
+        note=(f"Max minus min of the {T:g}-s block frequency over the whole track"
+              + (f"; within the noise of the estimates (~{noise_pp:.2g} Hz expected from noise "
+                 "alone), so the true figure is at most this" if pp_noise else "")
+              + "." + rel_note),
+        details={"noise_peak_to_peak_hz": noise_pp, "t_max_s": float(t[np.argmax(f)]),
+                 "t_min_s": float(t[np.argmin(f)])},
+    )
+
+    # --- worst window ---------------------------------------------------------------
+    span_s = float(t[-1] - t[0] + T)
+    if window_s < 2.0 * T:
+        ms["drift_worst_window_hz"] = Measurement(
+            value=None, unit="Hz",
+            note=(f"not measured: the {window_s:g}-s window holds fewer than two {T:g}-s blocks "
+                  "(a longer --window or a shorter --block)."),
+            details={"window_s": window_s},
+        )
+    else:
+        if span_s <= window_s:
+            ww, wt = pp, float(t[0] - T / 2)
+            wnote = (f"The recording ({span_s:.0f} s of usable blocks) is not longer than the "
+                     f"{window_s:g}-s window: this is the peak-to-peak of the whole track.")
+        else:
+            ww, wt = _window_excursion(t, f, window_s - T)
+            wnote = f"Largest max-minus-min frequency within any {window_s:g}-s window."
+        n_win = max(2, int(round(min(window_s, span_s) / T)))
+        wnoise = _noise_pp(n_win, sig_med)
+        w_noise = ww <= 1.5 * wnoise
+        ms["drift_worst_window_hz"] = Measurement(
+            value=ww,
+            unit="Hz",
+            uncertainty=math.sqrt(2.0) * sig_med,
+            limited_by_noise=w_noise,
+            bound="upper" if w_noise else None,
+            note=wnote + (" Within the noise of the estimates." if w_noise else "") + rel_note,
+            details={"window_s": window_s, "window_start_s": wt},
+        )
+
+    # --- settling -------------------------------------------------------------------
+    key_i = int(np.argmax(track.valid))
+    key_down = float(track.times_s[key_i]) - T / 2  # start of the first block with the line
+    details["key_down_s"] = key_down
+    band = max(settle_band_hz, 5.0 * sig_med)
+    # final value: the last 20 % of the track, at least 60 s, at most half of it
+    n_tail = max(MIN_BLOCKS, int(math.ceil(0.2 * f.size)), int(math.ceil(60.0 / T)))
+    n_tail = min(n_tail, max(MIN_BLOCKS, f.size // 2))
+    tail = f[-n_tail:]
+    f_end = float(np.median(tail))
+    started = "the start of the recording (line present from the start)" if key_i == 0 else \
+        f"key-down at {key_down:.1f} s (first block with the line)"
+    if np.any(np.abs(tail - f_end) > band):
+        tail_slope = _slope(t[-n_tail:], tail)[0] * 60.0
+        ms["warmup_settling_s"] = Measurement(
+            value=None,
+            unit="s",
+            note=(f"Did not settle within +/-{band:.2g} Hz before the end: the last "
+                  f"{n_tail} blocks still move ({tail_slope:+.2g} Hz/min); settling time > "
+                  f"{t[-1] - key_down:.0f} s after {started}."),
+            details={"band_hz": band, "lower_bound_s": float(t[-1] + T / 2 - key_down)},
+        )
+    else:
+        outside = np.flatnonzero(np.abs(f - f_end) > band)
+        settle_t = float(t[outside[-1] + 1] - T / 2) if outside.size else float(t[0] - T / 2)
+        value = max(0.0, settle_t - key_down)
+        ms["warmup_settling_s"] = Measurement(
+            value=value,
+            unit="s",
+            uncertainty=T / math.sqrt(12.0) if value > 0 else T / 2,
+            note=(f"Time from {started} until the frequency stays within +/-{band:.2g} Hz of "
+                  f"its final value ({f_end - nominal:+.2f} Hz, median of the last {n_tail} "
+                  f"blocks)." + rel_note),
+            details={"band_hz": band, "final_offset_hz": f_end - nominal},
+        )
+
+    # --- Allan deviation ------------------------------------------------------------
+    allan: AllanResult | None = None
+    if track.center_frequency_hz is not None:
+        f_rf = track.center_frequency_hz + mean_f + (track.plan.carrier_shift_hz or 0.0)
+        ok = track.valid if track.stable_valid is None else (track.valid & track.stable_valid)
+        a, b = _longest_run(ok)
+        if b - a < MIN_BLOCKS or f_rf <= 0:
+            ms["allan_deviation"] = failed(
+                "1", f"not measured: the longest run of usable blocks is {b - a} (need {MIN_BLOCKS})."
+            )
+        else:
+            sel = np.isin(track.times_s, track.times_s[a:b])
+            tf = np.isin(t, track.times_s[a:b])
+            y = (f[tf] - mean_f) / f_rf
+            allan = oadev(y, T, data_type="frequency")
+            if allan.taus_s.size == 0:
+                allan = None
+                ms["allan_deviation"] = failed("1", "not measured: too few blocks for any tau.")
+            else:
+                tau, dev, err = allan.at(ADEV_QUOTE_TAU_S)
+                floor = float(np.median(s[tf])) / f_rf
+                ms["allan_deviation"] = Measurement(
+                    value=dev,
+                    unit="1",
+                    uncertainty=err,
+                    note=(f"Overlapping Allan deviation of fractional frequency at tau = {tau:g} s "
+                          f"(NIST SP 1065 eq. 11), RF {f_rf / 1e6:.6f} MHz, {int(sel.sum())} "
+                          f"contiguous blocks of {T:g} s. The estimator's own noise gives about "
+                          f"{floor:.1e} at tau = {T:g} s, falling as tau^-1.5." + rel_note),
+                    details={
+                        "tau_s": allan.taus_s.tolist(),
+                        "adev": allan.deviation.tolist(),
+                        "error": allan.error.tolist(),
+                        "n": allan.n_terms.tolist(),
+                        "tau_quoted_s": tau,
+                        "rf_frequency_hz": f_rf,
+                    },
+                )
+    if track.stable_hz is not None and track.stable_valid is not None:
+        lost = int(np.sum(~track.stable_valid))
+        if lost:
+            warnings.append(f"the stable reference line was not seen in {lost} of {track.n_blocks} blocks")
+    warnings.extend(track.plan.warnings)
+    lost_line = int(np.sum(~track.valid))
+    if lost_line and key_i == 0:
+        warnings.append(f"the followed line was below the noise in {lost_line} of {track.n_blocks} blocks")
+    return DriftResult(track, ms, allan, (icpt, slope), nominal, tuple(warnings), details)
