@@ -89,7 +89,7 @@ def run(args: argparse.Namespace) -> int:
     from ..measure.harmonics import harmonics_table
 
     check_format(args.format)
-    # Limits first: a bad profile is a usage error before any recording is read.
+    # Limits first: a bad profile is a limits error (exit 4) before any recording is read.
     limits = combine_profiles([load_limits(spec) for spec in args.limits]) if args.limits else None
     files: list[str] = []
     seen: set[str] = set()
