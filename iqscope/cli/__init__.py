@@ -36,7 +36,7 @@ COMMAND_MODULES = (
 EXIT_STATUS_HELP = """\
 exit status:
   0  success (grade: every verdict passed)
-  1  grade: worst verdict is warn (harmonics: inconclusive)
+  1  grade: worst verdict is warn (harmonics: warn, inconclusive or no limit)
   2  grade: worst verdict is fail (harmonics: a harmonic exceeds its limit)
   3  unusable input (missing, malformed, truncated file, absurd metadata)
   4  usage error (bad or conflicting options, unusable limits profile)

@@ -78,6 +78,7 @@ LABELS: Final[Mapping[str, str]] = {
     "tone_balance_db": "tone balance",
     # spurs and harmonics
     "worst_spur_dbc": "worst spur",
+    "harmonic_dbc": "harmonic",
     "worst_harmonic_dbc": "worst harmonic",
     # power (with a calibration)
     "mean_power_dbm": "mean power",
