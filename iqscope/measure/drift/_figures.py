@@ -29,6 +29,7 @@ from ._constants import (
     NOTE_INCLUDES_RECEIVER,
     NOTE_RELATIVE,
 )
+from ._plan import LinePlan
 from ._tracker import FrequencyTrack
 
 
@@ -211,17 +212,49 @@ def drift_measurements(
 
     T = track.block_s
     sig_med = float(np.median(s))
-    what = track.plan.description
     ms: dict[str, Measurement] = {}
-
-    # --- offset ---------------------------------------------------------------------
     mean_f = float(np.mean(f))
-    if track.plan.kind in ("carrier", "carrier leak", "sideband pair"):
-        where = "the carrier"
-    elif track.plan.kind == "tone" and track.plan.carrier_shift_hz is not None:
-        where = "the carrier (tone line minus the tone's audio frequency)"
-    else:
-        where = "the followed line"
+    where = _where(track.plan)
+    ms.update(_offset_measurements(track, s, mean_f, where, nominal_offset_hz, nominal))
+    slope_m, slope, icpt = _slope_measurement(t, f, T, where, rel_note, nominal)
+    ms["drift_hz_per_min"] = slope_m
+    pp_m, pp = _peak_to_peak_measurement(t, f, T, sig_med, rel_note)
+    ms["drift_peak_to_peak_hz"] = pp_m
+    ms["drift_worst_window_hz"] = _worst_window_measurement(t, f, T, sig_med, pp, window_s, rel_note)
+    settle_m, key_i, key_down = _settling_measurement(track, t, f, T, sig_med, settle_band_hz, nominal, rel_note)
+    ms["warmup_settling_s"] = settle_m
+    details["key_down_s"] = key_down
+    allan: AllanResult | None = None
+    if track.center_frequency_hz is not None:
+        adev_m, allan = _allan_measurement(track, track.center_frequency_hz, t, f, s, T, mean_f, rel_note)
+        ms["allan_deviation"] = adev_m
+    warnings.extend(_track_warnings(track, key_i))
+    return DriftResult(track, ms, allan, (icpt, slope), nominal, tuple(warnings), details)
+
+
+def _where(plan: LinePlan) -> str:
+    """What the figures describe: the carrier, the carrier inferred from a tone, or the line."""
+    if plan.kind in ("carrier", "carrier leak", "sideband pair"):
+        return "the carrier"
+    if plan.kind == "tone" and plan.carrier_shift_hz is not None:
+        return "the carrier (tone line minus the tone's audio frequency)"
+    return "the followed line"
+
+
+def _offset_measurements(
+    track: FrequencyTrack,
+    s: npt.NDArray[np.float64],
+    mean_f: float,
+    where: str,
+    nominal_offset_hz: float | None,
+    nominal: float,
+) -> dict[str, Measurement]:
+    """``frequency_offset_hz`` and, with a nominal carrier, ``frequency_error_hz``: the
+    time-mean frequency, with the standard error of the mean of independent block
+    estimates (1-sigma ``s`` each)."""
+    ms: dict[str, Measurement] = {}
+    relative = track.stable_hz is not None
+    what = track.plan.description
     if track.plan.kind == "tone" and track.plan.carrier_shift_hz is None:
         why = "not measured: the SSB tone's audio frequency is unknown (give --tone)."
         ms["frequency_offset_hz"] = failed("Hz", why)
@@ -253,10 +286,20 @@ def drift_measurements(
                 note=f"Time-mean frequency of {where} minus the nominal carrier (--carrier).{cal}",
                 details=dict(det, nominal_offset_hz=nominal),
             )
+    return ms
 
-    # --- slope ----------------------------------------------------------------------
+
+def _slope_measurement(
+    t: npt.NDArray[np.float64],
+    f: npt.NDArray[np.float64],
+    T: float,
+    where: str,
+    rel_note: str,
+    nominal: float,
+) -> tuple[Measurement, float, float]:
+    """``drift_hz_per_min`` (:func:`_slope` x 60), the slope in Hz/s and the intercept, Hz."""
     slope, icpt, se, rho = _slope(t, f)
-    ms["drift_hz_per_min"] = Measurement(
+    m = Measurement(
         value=slope * 60.0,
         unit="Hz/min",
         uncertainty=se * 60.0,
@@ -266,12 +309,22 @@ def drift_measurements(
               + "." + rel_note),
         details={"intercept_hz": icpt - nominal, "residual_lag1_correlation": rho},
     )
+    return m, slope, icpt
 
-    # --- peak to peak ---------------------------------------------------------------
+
+def _peak_to_peak_measurement(
+    t: npt.NDArray[np.float64],
+    f: npt.NDArray[np.float64],
+    T: float,
+    sig_med: float,
+    rel_note: str,
+) -> tuple[Measurement, float]:
+    """``drift_peak_to_peak_hz`` over the whole track (noise-limited within 1.5x of
+    :func:`_noise_pp`), and the peak-to-peak value, Hz."""
     pp = float(f.max() - f.min())
     noise_pp = _noise_pp(f.size, sig_med)
     pp_noise = pp <= 1.5 * noise_pp
-    ms["drift_peak_to_peak_hz"] = Measurement(
+    m = Measurement(
         value=pp,
         unit="Hz",
         uncertainty=math.sqrt(2.0) * sig_med,
@@ -284,41 +337,65 @@ def drift_measurements(
         details={"noise_peak_to_peak_hz": noise_pp, "t_max_s": float(t[np.argmax(f)]),
                  "t_min_s": float(t[np.argmin(f)])},
     )
+    return m, pp
 
-    # --- worst window ---------------------------------------------------------------
+
+def _worst_window_measurement(
+    t: npt.NDArray[np.float64],
+    f: npt.NDArray[np.float64],
+    T: float,
+    sig_med: float,
+    pp: float,
+    window_s: float,
+    rel_note: str,
+) -> Measurement:
+    """``drift_worst_window_hz``: the largest excursion within any ``window_s`` window
+    (:func:`_window_excursion`); the whole track's ``pp`` when the track is not longer
+    than the window; null when the window holds fewer than two blocks."""
     span_s = float(t[-1] - t[0] + T)
     if window_s < 2.0 * T:
-        ms["drift_worst_window_hz"] = Measurement(
+        return Measurement(
             value=None, unit="Hz",
             note=(f"not measured: the {window_s:g}-s window holds fewer than two {T:g}-s blocks "
                   "(a longer --window or a shorter --block)."),
             details={"window_s": window_s},
         )
+    if span_s <= window_s:
+        ww, wt = pp, float(t[0] - T / 2)
+        wnote = (f"The recording ({span_s:.0f} s of usable blocks) is not longer than the "
+                 f"{window_s:g}-s window: this is the peak-to-peak of the whole track.")
     else:
-        if span_s <= window_s:
-            ww, wt = pp, float(t[0] - T / 2)
-            wnote = (f"The recording ({span_s:.0f} s of usable blocks) is not longer than the "
-                     f"{window_s:g}-s window: this is the peak-to-peak of the whole track.")
-        else:
-            ww, wt = _window_excursion(t, f, window_s - T)
-            wnote = f"Largest max-minus-min frequency within any {window_s:g}-s window."
-        n_win = max(2, int(round(min(window_s, span_s) / T)))
-        wnoise = _noise_pp(n_win, sig_med)
-        w_noise = ww <= 1.5 * wnoise
-        ms["drift_worst_window_hz"] = Measurement(
-            value=ww,
-            unit="Hz",
-            uncertainty=math.sqrt(2.0) * sig_med,
-            limited_by_noise=w_noise,
-            bound="upper" if w_noise else None,
-            note=wnote + (" Within the noise of the estimates." if w_noise else "") + rel_note,
-            details={"window_s": window_s, "window_start_s": wt},
-        )
+        ww, wt = _window_excursion(t, f, window_s - T)
+        wnote = f"Largest max-minus-min frequency within any {window_s:g}-s window."
+    n_win = max(2, int(round(min(window_s, span_s) / T)))
+    wnoise = _noise_pp(n_win, sig_med)
+    w_noise = ww <= 1.5 * wnoise
+    return Measurement(
+        value=ww,
+        unit="Hz",
+        uncertainty=math.sqrt(2.0) * sig_med,
+        limited_by_noise=w_noise,
+        bound="upper" if w_noise else None,
+        note=wnote + (" Within the noise of the estimates." if w_noise else "") + rel_note,
+        details={"window_s": window_s, "window_start_s": wt},
+    )
 
-    # --- settling -------------------------------------------------------------------
+
+def _settling_measurement(
+    track: FrequencyTrack,
+    t: npt.NDArray[np.float64],
+    f: npt.NDArray[np.float64],
+    T: float,
+    sig_med: float,
+    settle_band_hz: float,
+    nominal: float,
+    rel_note: str,
+) -> tuple[Measurement, int, float]:
+    """``warmup_settling_s`` from key-down (the first block with the line) until the
+    frequency stays within the settling band of its final value (median of the tail); the
+    index of that first block and the key-down time, s."""
     key_i = int(np.argmax(track.valid))
     key_down = float(track.times_s[key_i]) - T / 2  # start of the first block with the line
-    details["key_down_s"] = key_down
     band = max(settle_band_hz, 5.0 * sig_med)
     # final value: the last 20 % of the track, at least 60 s, at most half of it
     n_tail = max(MIN_BLOCKS, int(math.ceil(0.2 * f.size)), int(math.ceil(60.0 / T)))
@@ -329,7 +406,7 @@ def drift_measurements(
         f"key-down at {key_down:.1f} s (first block with the line)"
     if np.any(np.abs(tail - f_end) > band):
         tail_slope = _slope(t[-n_tail:], tail)[0] * 60.0
-        ms["warmup_settling_s"] = Measurement(
+        m = Measurement(
             value=None,
             unit="s",
             note=(f"Did not settle within +/-{band:.2g} Hz before the end: the last "
@@ -341,7 +418,7 @@ def drift_measurements(
         outside = np.flatnonzero(np.abs(f - f_end) > band)
         settle_t = float(t[outside[-1] + 1] - T / 2) if outside.size else float(t[0] - T / 2)
         value = max(0.0, settle_t - key_down)
-        ms["warmup_settling_s"] = Measurement(
+        m = Measurement(
             value=value,
             unit="s",
             uncertainty=T / math.sqrt(12.0) if value > 0 else T / 2,
@@ -350,45 +427,66 @@ def drift_measurements(
                   f"blocks)." + rel_note),
             details={"band_hz": band, "final_offset_hz": f_end - nominal},
         )
+    return m, key_i, key_down
 
-    # --- Allan deviation ------------------------------------------------------------
-    allan: AllanResult | None = None
-    if track.center_frequency_hz is not None:
-        f_rf = track.center_frequency_hz + mean_f + (track.plan.carrier_shift_hz or 0.0)
-        ok = track.valid if track.stable_valid is None else (track.valid & track.stable_valid)
-        a, b = _longest_run(ok)
-        if b - a < MIN_BLOCKS or f_rf <= 0:
-            ms["allan_deviation"] = failed(
-                "1", f"not measured: the longest run of usable blocks is {b - a} (need {MIN_BLOCKS})."
-            )
-        else:
-            sel = np.isin(track.times_s, track.times_s[a:b])
-            tf = np.isin(t, track.times_s[a:b])
-            y = (f[tf] - mean_f) / f_rf
-            allan = oadev(y, T, data_type="frequency")
-            if allan.taus_s.size == 0:
-                allan = None
-                ms["allan_deviation"] = failed("1", "not measured: too few blocks for any tau.")
-            else:
-                tau, dev, err = allan.at(ADEV_QUOTE_TAU_S)
-                floor = float(np.median(s[tf])) / f_rf
-                ms["allan_deviation"] = Measurement(
-                    value=dev,
-                    unit="1",
-                    uncertainty=err,
-                    note=(f"Overlapping Allan deviation of fractional frequency at tau = {tau:g} s "
-                          f"(NIST SP 1065 eq. 11), RF {f_rf / 1e6:.6f} MHz, {int(sel.sum())} "
-                          f"contiguous blocks of {T:g} s. The estimator's own noise gives about "
-                          f"{floor:.1e} at tau = {T:g} s, falling as tau^-1.5." + rel_note),
-                    details={
-                        "tau_s": allan.taus_s.tolist(),
-                        "adev": allan.deviation.tolist(),
-                        "error": allan.error.tolist(),
-                        "n": allan.n_terms.tolist(),
-                        "tau_quoted_s": tau,
-                        "rf_frequency_hz": f_rf,
-                    },
-                )
+
+def _allan_measurement(
+    track: FrequencyTrack,
+    center_frequency_hz: float,
+    t: npt.NDArray[np.float64],
+    f: npt.NDArray[np.float64],
+    s: npt.NDArray[np.float64],
+    T: float,
+    mean_f: float,
+    rel_note: str,
+) -> tuple[Measurement, AllanResult | None]:
+    """``allan_deviation`` (``center_frequency_hz``: the track's capture centre, Hz): overlapping ADEV of fractional
+    frequency on the longest run of usable blocks, quoted at the octave tau nearest
+    :data:`ADEV_QUOTE_TAU_S`; and the whole ADEV curve, or None.
+
+    References
+    ----------
+    .. [1] W. J. Riley, *Handbook of Frequency Stability Analysis*, NIST SP 1065, 2008, eq. 11.
+    """
+    f_rf = center_frequency_hz + mean_f + (track.plan.carrier_shift_hz or 0.0)
+    ok = track.valid if track.stable_valid is None else (track.valid & track.stable_valid)
+    a, b = _longest_run(ok)
+    if b - a < MIN_BLOCKS or f_rf <= 0:
+        return failed(
+            "1", f"not measured: the longest run of usable blocks is {b - a} (need {MIN_BLOCKS})."
+        ), None
+    sel = np.isin(track.times_s, track.times_s[a:b])
+    tf = np.isin(t, track.times_s[a:b])
+    y = (f[tf] - mean_f) / f_rf
+    allan = oadev(y, T, data_type="frequency")
+    if allan.taus_s.size == 0:
+        return failed("1", "not measured: too few blocks for any tau."), None
+    tau, dev, err = allan.at(ADEV_QUOTE_TAU_S)
+    floor = float(np.median(s[tf])) / f_rf
+    m = Measurement(
+        value=dev,
+        unit="1",
+        uncertainty=err,
+        note=(f"Overlapping Allan deviation of fractional frequency at tau = {tau:g} s "
+              f"(NIST SP 1065 eq. 11), RF {f_rf / 1e6:.6f} MHz, {int(sel.sum())} "
+              f"contiguous blocks of {T:g} s. The estimator's own noise gives about "
+              f"{floor:.1e} at tau = {T:g} s, falling as tau^-1.5." + rel_note),
+        details={
+            "tau_s": allan.taus_s.tolist(),
+            "adev": allan.deviation.tolist(),
+            "error": allan.error.tolist(),
+            "n": allan.n_terms.tolist(),
+            "tau_quoted_s": tau,
+            "rf_frequency_hz": f_rf,
+        },
+    )
+    return m, allan
+
+
+def _track_warnings(track: FrequencyTrack, key_i: int) -> list[str]:
+    """Warnings about the track: blocks without the stable line, the plan's own warnings,
+    and blocks without the followed line after it first appeared at the start."""
+    warnings: list[str] = []
     if track.stable_hz is not None and track.stable_valid is not None:
         lost = int(np.sum(~track.stable_valid))
         if lost:
@@ -397,4 +495,4 @@ def drift_measurements(
     lost_line = int(np.sum(~track.valid))
     if lost_line and key_i == 0:
         warnings.append(f"the followed line was below the noise in {lost_line} of {track.n_blocks} blocks")
-    return DriftResult(track, ms, allan, (icpt, slope), nominal, tuple(warnings), details)
+    return warnings
