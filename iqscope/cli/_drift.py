@@ -10,7 +10,6 @@ from __future__ import annotations
 
 import argparse
 import sys
-from pathlib import Path
 from typing import Any
 
 from ._options import MODE_CHOICES, add_input_options, check_format, hz, positive_hz, positive_seconds
@@ -65,15 +64,15 @@ def register(subparsers: Any) -> None:
     p.set_defaults(func=run)
 
 
-def _plot_targets(args: argparse.Namespace) -> list[Path]:
+def _plot_prefix(args: argparse.Namespace) -> str:
+    """Check the --plot folder before any work; return the file-name prefix of the plots."""
     from ..report._drift import DRIFT_PLOT_NAMES
     from ._grade import output_stem
     from ._options import check_plot_folder
 
-    stem = output_stem(args.file)
-    names = [f"{stem}-drift-{name}.png" for name in DRIFT_PLOT_NAMES]
-    folder = check_plot_folder(args.plot, names, force=args.force)
-    return [folder / name for name in names]
+    prefix = f"{output_stem(args.file)}-drift-"
+    check_plot_folder(args.plot, [f"{prefix}{name}.png" for name in DRIFT_PLOT_NAMES], force=args.force)
+    return prefix
 
 
 def run(args: argparse.Namespace) -> int:
@@ -86,7 +85,7 @@ def run(args: argparse.Namespace) -> int:
     from ..report._theme import is_ascii, make_console
 
     check_format(args.format)
-    targets = _plot_targets(args) if args.plot else []
+    plot_prefix = _plot_prefix(args) if args.plot else None
     with open_recording(args.file, format=args.format, rate=args.rate, center=args.center) as rec:
         err = make_console(stderr=True)
         show = sys.stderr.isatty() and not args.quiet
@@ -111,17 +110,9 @@ def run(args: argparse.Namespace) -> int:
         else:
             out = make_console()
             out.print(render_drift(result, rec, ascii_only=is_ascii(out)))
-        if targets:
-            from ..io._atomic import atomic_write
-            from ._options import make_plot_folder
+        if plot_prefix is not None:
+            from ._options import write_plots
 
-            make_plot_folder(args.plot)
-            pngs = drift_plots(result, rec.name)
-            for target in targets:
-                name = target.stem.rsplit("-drift-", 1)[-1]
-                if name not in pngs:
-                    continue
-                with atomic_write(target, force=args.force) as fh:
-                    fh.write(pngs[name])
-                print(f"iqscope: wrote {target}", file=sys.stderr)
+            write_plots(args.plot, drift_plots(result, rec.name), force=args.force,
+                        prefix=plot_prefix)
     return 0

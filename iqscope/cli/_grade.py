@@ -252,16 +252,11 @@ def _write_outputs(args: argparse.Namespace, results: list[Any], stems: list[str
 
         images = [render_plots(r) for r in results]
     if args.plot:
-        from ..io._atomic import atomic_write
-        from ._options import make_plot_folder
+        from ._options import write_plots
 
-        folder = make_plot_folder(args.plot)
         for stem, pngs in zip(stems, images):
-            for name, png in pngs.items():
-                target = folder / f"{stem}-{name}.png"
-                with atomic_write(target, force=args.force) as fh:
-                    fh.write(png)
-                _note(args, err, f"wrote {target}")
+            write_plots(args.plot, pngs, force=args.force, prefix=f"{stem}-",
+                        note=lambda message: _note(args, err, message))
     if args.report:
         from ..io._atomic import atomic_write_text
         from ..report._html import render_html

@@ -137,14 +137,10 @@ def run(args: argparse.Namespace) -> int:
 
         print_harmonics(data, make_console())
     if args.plot:
-        from ..io._atomic import atomic_write
         from ..report._sweep import render_harmonics_png
+        from ._options import write_plots
 
-        for name, png in render_harmonics_png(data).items():
-            target = Path(args.plot) / f"{name}.png"
-            with atomic_write(target, force=args.force) as fh:
-                fh.write(png)
-            print(f"iqscope: wrote {target}", file=sys.stderr)
+        write_plots(args.plot, render_harmonics_png(data), force=args.force)
     return graded.exit_status
 
 

@@ -25,15 +25,16 @@ from __future__ import annotations
 import argparse
 import math
 import re
-from collections.abc import Iterable
+from collections.abc import Callable, Iterable, Mapping
 from pathlib import Path
 from typing import Final
 
 from ..errors import OutputError, UsageError
-from ..io._atomic import check_can_write
+from ..io._atomic import atomic_write, check_can_write
 from ..measure.locate import MODES
 
 __all__ = [
+    "write_plots",
     "MODE_CHOICES",
     "FORMAT_HELP",
     "parse_hz",
@@ -175,3 +176,32 @@ def make_plot_folder(folder: str | Path) -> Path:
     except OSError as exc:
         raise OutputError(f"cannot create the plot folder: {exc.strerror or exc}", path) from exc
     return path
+
+
+def _stderr_note(message: str) -> None:
+    import sys
+
+    print(f"iqscope: {message}", file=sys.stderr)
+
+
+def write_plots(
+    folder: str | Path,
+    pngs: Mapping[str, bytes],
+    *,
+    force: bool,
+    prefix: str = "",
+    note: Callable[[str], None] = _stderr_note,
+) -> list[Path]:
+    """Write rendered PNGs as ``FOLDER/<prefix><name>.png`` (atomically), creating the folder.
+
+    ``note`` is told ``"wrote PATH"`` for each file (default: one line on stderr).
+    """
+    where = make_plot_folder(folder)
+    written = []
+    for name, png in pngs.items():
+        target = where / f"{prefix}{name}.png"
+        with atomic_write(target, force=force) as fh:
+            fh.write(png)
+        note(f"wrote {target}")
+        written.append(target)
+    return written

@@ -7,7 +7,6 @@ import json
 import math
 import sys
 from collections.abc import Mapping
-from pathlib import Path
 from typing import Any
 
 from ..errors import EXIT_OK, UsageError
@@ -161,12 +160,8 @@ def run(args: argparse.Namespace) -> int:
 
         print_sweep(data, make_console())
     if args.plot:
-        from ..io._atomic import atomic_write
         from ..report._sweep import render_sweep_png
+        from ._options import write_plots
 
-        for name, png in render_sweep_png(data).items():
-            target = Path(args.plot) / f"{name}.png"
-            with atomic_write(target, force=args.force) as fh:
-                fh.write(png)
-            print(f"iqscope: wrote {target}", file=sys.stderr)
+        write_plots(args.plot, render_sweep_png(data), force=args.force)
     return EXIT_OK
