@@ -16,11 +16,12 @@ from __future__ import annotations
 import argparse
 import json
 import os
-import resource
 import subprocess
 import sys
 import time
 from pathlib import Path
+
+from _memory import peak_rss_mb  # benchmarks/ is on sys.path when a script runs
 
 BENCH = Path(__file__).resolve().parent / "_data"
 DRIFT_HZ_PER_MIN = 2.37
@@ -52,20 +53,6 @@ def make_file(seconds: float, fs: float) -> Path:
             yield x.astype(np.complex64)
 
     return write_sigmf(base, blocks(), fs, center_frequency_hz=10.1e6, description="iqscope drift benchmark")
-
-
-def peak_rss_mb() -> float:
-    """Peak resident memory of this process, MB: ``VmHWM`` from /proc (Linux; reset at
-    exec, unlike ``ru_maxrss``, which keeps the parent's peak across fork + exec), else
-    ``ru_maxrss``."""
-    try:
-        with open("/proc/self/status") as fh:
-            for line in fh:
-                if line.startswith("VmHWM:"):
-                    return int(line.split()[1]) / 1024.0
-    except OSError:
-        pass
-    return resource.getrusage(resource.RUSAGE_SELF).ru_maxrss / 1024.0
 
 
 def child(meta: str) -> None:
