@@ -93,12 +93,17 @@ def positive_hz(text: str) -> float:
     return value
 
 
+def _number(text: str, what: str = "a number") -> float:
+    """``float(text)``, or an argparse error saying ``text`` is not ``what``."""
+    try:
+        return float(text)
+    except ValueError:
+        raise argparse.ArgumentTypeError(f"{text!r} is not {what}") from None
+
+
 def positive_seconds(text: str) -> float:
     """argparse type: a positive, finite number of seconds."""
-    try:
-        value = float(text)
-    except ValueError:
-        raise argparse.ArgumentTypeError(f"{text!r} is not a number of seconds") from None
+    value = _number(text, "a number of seconds")
     if not math.isfinite(value) or value <= 0:
         raise argparse.ArgumentTypeError(f"{text!r} must be a positive number of seconds")
     return value
@@ -106,10 +111,7 @@ def positive_seconds(text: str) -> float:
 
 def finite_number(text: str) -> float:
     """argparse type: a finite number (dB, dBm ...)."""
-    try:
-        value = float(text)
-    except ValueError:
-        raise argparse.ArgumentTypeError(f"{text!r} is not a number") from None
+    value = _number(text)
     if not math.isfinite(value):
         raise argparse.ArgumentTypeError(f"{text!r} is not a finite number")
     return value
@@ -117,10 +119,7 @@ def finite_number(text: str) -> float:
 
 def positive_number(text: str) -> float:
     """argparse type: a finite number above 0 (watts ...)."""
-    try:
-        value = float(text)
-    except ValueError:
-        raise argparse.ArgumentTypeError(f"{text!r} is not a number") from None
+    value = _number(text)
     if not (math.isfinite(value) and value > 0):
         raise argparse.ArgumentTypeError(f"{text!r} must be a positive number")
     return value

@@ -56,6 +56,17 @@ def _optional_finite(name: str, value: float | None) -> None:
         _finite(name, value)
 
 
+def _nonnegative(name: str, value: float) -> None:
+    _finite(name, value)
+    if value < 0:
+        raise ValueError(f"{name}={value} must be >= 0")
+
+
+def _seed(value: object) -> None:
+    if isinstance(value, bool) or not isinstance(value, int) or value < 0:
+        raise ValueError(f"seed={value!r} must be a non-negative integer")
+
+
 # -- audio sources -----------------------------------------------------------------------
 @dataclass(frozen=True)
 class Tone:
@@ -153,9 +164,7 @@ class Cw:
 
     def __post_init__(self) -> None:
         _positive("words_per_minute", self.words_per_minute)
-        _finite("rise_time_s", self.rise_time_s)
-        if self.rise_time_s < 0:
-            raise ValueError(f"rise_time_s={self.rise_time_s} must be >= 0")
+        _nonnegative("rise_time_s", self.rise_time_s)
         _finite("start_s", self.start_s)
         if self.repeat_period_s is not None:
             _positive("repeat_period_s", self.repeat_period_s)
@@ -177,9 +186,7 @@ class Am:
     """The modulating audio."""
 
     def __post_init__(self) -> None:
-        _finite("modulation_index", self.modulation_index)
-        if self.modulation_index < 0:
-            raise ValueError(f"modulation_index={self.modulation_index} must be >= 0")
+        _nonnegative("modulation_index", self.modulation_index)
 
 
 @dataclass(frozen=True)
@@ -386,14 +393,11 @@ class SignalSpec:
 
     def __post_init__(self) -> None:
         _positive("sample_rate_hz", self.sample_rate_hz)
-        _finite("duration_s", self.duration_s)
-        if self.duration_s < 0:
-            raise ValueError(f"duration_s={self.duration_s} must be >= 0")
+        _nonnegative("duration_s", self.duration_s)
         _finite("level_dbfs", self.level_dbfs)
         _optional_finite("noise_dbfs_per_hz", self.noise_dbfs_per_hz)
         _optional_finite("center_frequency_hz", self.center_frequency_hz)
-        if isinstance(self.seed, bool) or not isinstance(self.seed, int) or self.seed < 0:
-            raise ValueError(f"seed={self.seed!r} must be a non-negative integer")
+        _seed(self.seed)
         if not isinstance(self.modulation, (Cw, Am, Dsb, Ssb)):
             raise ValueError(f"modulation={self.modulation!r} is not Cw, Am, Dsb or Ssb")
 
@@ -436,13 +440,10 @@ class AudioSpec:
 
     def __post_init__(self) -> None:
         _positive("sample_rate_hz", self.sample_rate_hz)
-        _finite("duration_s", self.duration_s)
-        if self.duration_s < 0:
-            raise ValueError(f"duration_s={self.duration_s} must be >= 0")
+        _nonnegative("duration_s", self.duration_s)
         _finite("peak_dbfs", self.peak_dbfs)
         _optional_finite("ramp_from_dbfs", self.ramp_from_dbfs)
-        if isinstance(self.seed, bool) or not isinstance(self.seed, int) or self.seed < 0:
-            raise ValueError(f"seed={self.seed!r} must be a non-negative integer")
+        _seed(self.seed)
         if self.audio.highest_hz >= self.sample_rate_hz / 2:
             raise ValueError(
                 f"audio up to {self.audio.highest_hz} Hz needs sample_rate_hz above "
