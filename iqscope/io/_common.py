@@ -118,8 +118,9 @@ def not_regular_reason(mode: int) -> str:
     return f"not a regular file ({kind})"
 
 
-def read_json_file(path: Path) -> Any:
-    """Read and decode a JSON file of bounded size."""
+def regular_file_stat(path: Path, *, what: str = "") -> os.stat_result:
+    """``path.stat()`` of a regular file, else :class:`InputMissingError` (missing,
+    unreadable, or a folder / pipe / device: ``what`` is added to that reason)."""
     try:
         st = path.stat()
     except FileNotFoundError as exc:
@@ -127,7 +128,13 @@ def read_json_file(path: Path) -> Any:
     except OSError as exc:
         raise InputMissingError(f"cannot read: {exc.strerror or exc}", path) from exc
     if not stat.S_ISREG(st.st_mode):
-        raise InputMissingError(not_regular_reason(st.st_mode), path)
+        raise InputMissingError(not_regular_reason(st.st_mode) + what, path)
+    return st
+
+
+def read_json_file(path: Path) -> Any:
+    """Read and decode a JSON file of bounded size."""
+    st = regular_file_stat(path)
     if st.st_size > MAX_JSON_BYTES:
         raise FormatError(f"metadata of {st.st_size} bytes is larger than we read", path)
     try:

@@ -10,7 +10,6 @@ memory on a long pass). The file is opened read-only and never written.
 from __future__ import annotations
 
 import os
-import stat
 import weakref
 from collections.abc import Mapping, Sequence
 from dataclasses import dataclass
@@ -21,7 +20,7 @@ import numpy as np
 import numpy.typing as npt
 
 from ..errors import FormatError, InputMissingError
-from ._common import not_regular_reason
+from ._common import regular_file_stat
 from ._formats import SampleFormat
 from ._recording import Annotation, Recording, Segment
 
@@ -59,15 +58,7 @@ def open_readonly(path: Path) -> int:
 
 def file_size(path: Path) -> int:
     """Size in bytes of a regular file; raise :class:`InputMissingError` otherwise."""
-    try:
-        st = path.stat()
-    except FileNotFoundError as exc:
-        raise InputMissingError("file not found", path) from exc
-    except OSError as exc:
-        raise InputMissingError(f"cannot read: {exc.strerror or exc}", path) from exc
-    if not stat.S_ISREG(st.st_mode):
-        raise InputMissingError(f"{not_regular_reason(st.st_mode)}, not a recording file", path)
-    return st.st_size
+    return regular_file_stat(path, what=", not a recording file").st_size
 
 
 def _pread(fd: int, size: int, offset: int) -> bytes:

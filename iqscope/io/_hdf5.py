@@ -13,7 +13,6 @@ integer datatypes. Slices are read on demand.
 from __future__ import annotations
 
 import weakref
-from pathlib import Path
 from typing import Any, Final
 
 import numpy as np
