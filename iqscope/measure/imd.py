@@ -32,9 +32,6 @@ from collections.abc import Mapping
 from dataclasses import dataclass, field
 from typing import Final
 
-import numpy as np
-import numpy.typing as npt
-
 from ..dsp._lines import LinePower, find_peaks, line_power, lobe_half_width_bins
 from ..dsp._types import Spectrum
 from ._context import AnalysisContext, FigureSet

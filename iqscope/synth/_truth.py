@@ -270,7 +270,6 @@ def truth(spec: SignalSpec) -> dict[str, float]:
     out: dict[str, float] = {}
     mod = spec.modulation
     plan = spec.frequency
-    p = 10.0 ** (spec.level_dbfs / 10.0)
     linear_amp = spec.amplifier.is_linear
 
     # frequency behaviour
