@@ -105,7 +105,7 @@ def test_format_help_names_only_accepted_formats() -> None:
 
     names = re.findall(r"[a-z][a-z0-9]+", FORMAT_HELP.split("reader (", 1)[1])
     names = [n for n in names if n not in ("raw", "datatype", "or", "a", "reader", "s", "file", "extension")]
-    assert {"sigmf", "wav", "hdf5", "cf32", "cs16", "sc8", "cfile", "h5"} <= set(names)
+    assert {"sigmf", "wav", "hdf5", "cf32", "cs16", "sc8", "h5"} <= set(names)
     for name in names:
         find_reader(Path("recording"), name)  # raises UsageError on an unknown name
 
@@ -172,3 +172,16 @@ def test_carrier_and_mode_read_alike(command: str) -> None:
     with pytest.raises(SystemExit) as exc:
         build_parser().parse_args(READING[command] + ["--tone", "-1k"])
     assert exc.value.code == EXIT_USAGE
+
+
+def test_no_framework_specific_format_alias() -> None:
+    """``cf32`` names 32-bit float complex samples; one framework's own term for the same
+    file (``cfile``) is not an alias of ours, as a format or as a file-name ending."""
+    from iqscope.errors import UsageError
+    from iqscope.io._raw import RAW_EXTENSION_DATATYPES
+    from iqscope.io._registry import find_reader
+
+    with pytest.raises(UsageError):
+        find_reader(Path("recording"), "cfile")
+    assert ".cfile" not in dict(RAW_EXTENSION_DATATYPES)
+    assert "cfile" not in FORMAT_HELP

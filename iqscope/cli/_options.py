@@ -55,7 +55,7 @@ MODE_CHOICES: Final[tuple[str, ...]] = tuple(MODES)
 #: Help text of ``--format`` (every reading command).
 FORMAT_HELP: Final = (
     "reader (sigmf, wav, hdf5, raw), raw datatype (cf32, ci16, ci8, cu8 ...) "
-    "or a reader's file extension (cs16, sc8, cfile, h5 ...)"
+    "or a reader's file extension (cs16, sc8, h5 ...)"
 )
 
 _SI: Final = {"": 1.0, "k": 1e3, "m": 1e6, "M": 1e6, "g": 1e9, "G": 1e9}

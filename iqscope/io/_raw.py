@@ -1,7 +1,7 @@
 """Raw interleaved I/Q files: no header, the caller names the datatype and the rate.
 
 The datatype comes from ``format`` (``cf32``, ``ci16_le``, ``ci8``, ``cu8`` ...), else from a
-file-name extension that implies one (``.cf32``/``.cfile``, ``.cs16``/``.ci16``, ``.cs8``/
+file-name extension that implies one (``.cf32``/``.fc32``, ``.cs16``/``.ci16``, ``.cs8``/
 ``.ci8``, ``.cu8``), else from our sidecar ``<file>.iqscope.json`` (``"datatype"``). The
 sample rate comes from ``rate`` or the sidecar's ``sample_rate_hz``; the centre frequency
 from ``center`` or the sidecar's ``center_frequency_hz``.
@@ -21,7 +21,6 @@ __all__ = ["open_raw", "RAW_EXTENSION_DATATYPES"]
 #: File-name endings that imply a datatype (common practice in SDR tools' file naming).
 RAW_EXTENSION_DATATYPES: tuple[tuple[str, str], ...] = (
     (".cf32", "cf32_le"),
-    (".cfile", "cf32_le"),
     (".fc32", "cf32_le"),
     (".cf64", "cf64_le"),
     (".cs16", "ci16_le"),

@@ -216,7 +216,7 @@ def open_recording(
     format : str, optional
         Reader name or alias (``sigmf``, ``wav``, ``raw``, ``hdf5`` ...), a sample
         datatype (``cf32``, ``ci16_le``, ``cu8`` ...) meaning a raw interleaved file, or a
-        file-name extension without its dot (``cs16``, ``sc8``, ``cfile``, ``h5`` ...) read
+        file-name extension without its dot (``cs16``, ``sc8``, ``h5`` ...) read
         as a file with that extension. Overrides the extension and content sniffing.
     rate : float, optional
         Sample rate in Hz; overrides the file's metadata (needed for raw files and for
