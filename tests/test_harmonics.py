@@ -234,6 +234,7 @@ class TestCommand:
         text = capsys.readouterr().out
         assert status == EXIT_FAIL  # -40 dBc > -43 dBc
         assert "transmitter" in text and "EXCEEDS" in text
+        assert "dummy load" in text and "RF burns" in text  # the caution under the table
         status = main(["harmonics", f, h2, "--step", h2b, "10", "--json"])
         out = json.loads(capsys.readouterr().out)
         step = out["harmonics"][0]["attenuation_step"]

@@ -151,7 +151,9 @@ class TestSweepCommand:
         plots = tmp_path / "plots"
         assert main(["sweep", *files, "--carrier", "1000", "--drive=" + ",".join(str(d) for d in drives), "--plot", str(plots)]) == 0
         assert (plots / "sweep.png").read_bytes()[:4] == b"\x89PNG"
-        assert "Drive sweep" in capsys.readouterr().out
+        text = capsys.readouterr().out
+        assert "Drive sweep" in text
+        assert "dummy load" in text and "attenuation" in text and "RF burns" in text
 
     def test_drive_count_mismatch(self, tmp_path: Path) -> None:
         from iqscope.cli import main

@@ -46,7 +46,15 @@ exit status:
 
 SAFETY_LINE = (
     "Safety: transmit only into a dummy load or an antenna you are licensed to use; put enough "
-    "attenuation before the receiver (a 5 W transmitter is +37 dBm); local regulations decide."
+    "attenuation before the receiver (a 5 W transmitter is +37 dBm); RF burns happen even at a "
+    "few watts, and RF exposure limits apply; local regulations decide."
+)
+
+#: The caution ``synth audio`` prints: its WAV is meant for a transmitter's audio input.
+AUDIO_CAUTION = (
+    "Caution: this audio is for a transmitter's input. Feed it only into a transmitter that "
+    "works into a dummy load (or an antenna you are licensed to use), sample the output through "
+    "enough attenuation (5 W is +37 dBm), and mind RF burns and exposure."
 )
 
 

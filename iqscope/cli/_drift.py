@@ -44,6 +44,8 @@ def add_tracking_options(p: argparse.ArgumentParser) -> None:
 
 def register(subparsers: Any) -> None:
     """Add the ``drift`` command."""
+    from . import SAFETY_LINE
+
     p = subparsers.add_parser(
         "drift",
         help="frequency drift and stability of a line through a recording",
@@ -52,6 +54,7 @@ def register(subparsers: Any) -> None:
         "peak-to-peak, worst excursion within a window, warm-up settling time and, when the RF "
         "frequency is known, the overlapping Allan deviation. Without --reference the figures "
         "include the receiver's own oscillator drift.",
+        epilog=SAFETY_LINE,
     )
     p.add_argument("file", help="recording: .sigmf-meta/.sigmf, .wav, .h5[:/dataset], or a raw file")
     add_tracking_options(p)
@@ -82,6 +85,7 @@ def run(args: argparse.Namespace) -> int:
     from ..report._drift import drift_document, drift_plots, render_drift
     from ..report._progress import progress_reporter
     from ..report._json import dumps
+    from ..report._text import render_caution
     from ..report._theme import is_ascii, make_console
 
     check_format(args.format)
@@ -110,6 +114,7 @@ def run(args: argparse.Namespace) -> int:
         else:
             out = make_console()
             out.print(render_drift(result, rec, ascii_only=is_ascii(out)))
+            out.print(render_caution())
         if plot_prefix is not None:
             from ._options import write_plots
 

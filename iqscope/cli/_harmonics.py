@@ -36,6 +36,8 @@ command.
 
 def register(subparsers: Any) -> None:
     """Add the ``harmonics`` command."""
+    from . import SAFETY_LINE
+
     p = subparsers.add_parser(
         "harmonics",
         help="table of harmonics from recordings at f, 2f, 3f ..., graded against a limits profile",
@@ -43,7 +45,7 @@ def register(subparsers: Any) -> None:
         "or a calibration) into a table of harmonic levels in dBc relative to the mean power of the "
         "fundamental, graded against a limits profile (default 'spurious': 47 CFR 97.307(d)/(e) and "
         "ITU RR Appendix 3).",
-        epilog=EPILOG,
+        epilog=EPILOG + "\n" + SAFETY_LINE,
         formatter_class=argparse.RawDescriptionHelpFormatter,
     )
     p.add_argument("files", nargs="+", metavar="FILE", help="recordings; the lowest centre frequency is the fundamental")

@@ -63,12 +63,14 @@ def _to_db(v: float, scale: str, text: str) -> float:
 
 def register(subparsers: Any) -> None:
     """Add the ``sweep`` command."""
+    from . import SAFETY_LINE
+
     p = subparsers.add_parser(
         "sweep",
         help="drive sweep: output, IMD3, carrier and opposite sideband against drive; P1dB, OIP3",
         description="Analyse recordings made at several drive levels and show the figures against "
         "drive: is the modulator or amplifier being overdriven?",
-        epilog=EPILOG,
+        epilog=EPILOG + "\n" + SAFETY_LINE,
         formatter_class=argparse.RawDescriptionHelpFormatter,
     )
     p.add_argument("files", nargs="+", metavar="FILE", help="recordings, one per drive level")

@@ -147,6 +147,8 @@ def _dsb_options(p: argparse.ArgumentParser) -> None:
 
 def register(subparsers: Any) -> None:
     """Add the ``synth`` command (with one sub-command per signal kind) to the CLI."""
+    from . import AUDIO_CAUTION
+
     parser = subparsers.add_parser(
         "synth",
         help="synthesize a test signal with a known answer",
@@ -156,7 +158,8 @@ def register(subparsers: Any) -> None:
     kinds = parser.add_subparsers(dest="kind", metavar="KIND", required=True,
                                   parser_class=type(parser))
     for kind in KINDS:
-        p = kinds.add_parser(kind, help=_HELP[kind], description=_HELP[kind] + ".")
+        p = kinds.add_parser(kind, help=_HELP[kind], description=_HELP[kind] + ".",
+                             epilog=AUDIO_CAUTION if kind == "audio" else None)
         if kind == "cw":
             p.add_argument("--message", metavar="TEXT",
                            help="text to key in Morse (default: steady key-down)")
@@ -309,6 +312,10 @@ def run(args: argparse.Namespace) -> int:
                                 force=args.force)
     except ValueError as exc:
         raise UsageError(f"synth {args.kind}: {exc}") from None
+    if isinstance(spec, AudioSpec):  # a signal to feed a transmitter: the caution, on stderr
+        from . import AUDIO_CAUTION
+
+        print(f"iqscope: {AUDIO_CAUTION}", file=sys.stderr)
     if args.json:
         doc: dict[str, Any] = {"schema": "iqscope.synth/1", "path": str(path), **synth_metadata(spec)}
         print(json.dumps(doc, indent=2))

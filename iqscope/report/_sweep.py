@@ -18,6 +18,7 @@ from rich.table import Table
 from rich.text import Text
 
 from ._plots import figure_png
+from ._text import render_caution
 from ._theme import is_ascii
 from ._units import format_bound, format_frequency, format_value
 
@@ -125,6 +126,7 @@ def harmonics_renderable(data: Mapping[str, Any], *, ascii_only: bool = False) -
 def print_harmonics(data: Mapping[str, Any], console: Console) -> None:
     """Print the harmonics table to ``console``."""
     console.print(harmonics_renderable(data, ascii_only=is_ascii(console)))
+    console.print(render_caution())
 
 
 def harmonics_figure(data: Mapping[str, Any]) -> Figure:
@@ -217,6 +219,7 @@ def sweep_renderable(data: Mapping[str, Any], *, ascii_only: bool = False) -> Re
 def print_sweep(data: Mapping[str, Any], console: Console) -> None:
     """Print the sweep table to ``console``."""
     console.print(sweep_renderable(data, ascii_only=is_ascii(console)))
+    console.print(render_caution())
 
 
 def sweep_figure(data: Mapping[str, Any]) -> Figure:

@@ -103,6 +103,7 @@ LABELS: Final[Mapping[str, str]] = {
 CAUTION: Final = (
     "Caution: figures include the receiver chain. Transmit only into a dummy load or an antenna "
     "you are licensed to use, with enough attenuation before the receiver (5 W is +37 dBm). "
+    "RF burns happen even at a few watts, and RF exposure limits apply. "
     "Presets are a convenience, not legal advice: local regulations decide."
 )
 
