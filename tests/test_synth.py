@@ -660,6 +660,45 @@ def test_demo_recordings_regenerate_bit_for_bit(tmp_path: Path) -> None:
         assert committed.stat().st_size < 3_000_000
 
 
+def _load_make_readme():  # type: ignore[no-untyped-def]
+    import importlib.util
+
+    spec = importlib.util.spec_from_file_location("make_readme", DEMO_DIR / "make_readme.py")
+    assert spec is not None and spec.loader is not None
+    module = importlib.util.module_from_spec(spec)
+    spec.loader.exec_module(module)
+    return module
+
+
+def test_recordings_readme_tables_match_demos_json() -> None:
+    """recordings/README.md's tables are exactly what make_readme.py makes of demos.json."""
+    module = _load_make_readme()
+    assert module.main(["--check"]) == 0, "run python recordings/make_readme.py"
+
+
+def test_recordings_readme_shows_every_truth_it_names() -> None:
+    """Independent of the generator: each figure the answers table names by its JSON key
+    shows the value of demos.json at the printed precision (the two-tone demo's opposite
+    sideband and carrier suppression are its own, not the voice file's)."""
+    readme = (DEMO_DIR / "README.md").read_text(encoding="utf-8")
+    truth = json.loads((DEMO_DIR / "demos.json").read_text())["recordings"]
+    rows = {}
+    current = ""
+    for line in readme.splitlines():
+        cells = [c.strip() for c in line.strip().strip("|").split("|")]
+        if len(cells) == 3 and not (cells[0] and set(cells[0]) <= {"-"}):
+            current = cells[0] or current
+            rows[(current, cells[1])] = cells[2].replace("\u2212", "-")
+    two = truth["ssb20m_twotone"]["truth"]
+    value = rows[("ssb20m_twotone", "opposite sideband / carrier suppression")]
+    assert value == f"{two['opposite_sideband_suppression_db']:.2f} dB / {two['carrier_suppression_db']:.2f} dB"
+    imd = rows[("ssb20m_twotone", "imd3_dbc (re each tone) / imd3_db_pep (re PEP)")]
+    assert imd == f"{two['imd3_dbc']:.2f} / {two['imd3_db_pep']:.2f}"
+    kit = truth["ssb20m_kit"]["truth"]
+    assert rows[("ssb20m_kit", "carrier_suppression_db")] == f"{kit['carrier_suppression_db']:.2f}"
+    assert rows[("dsb40m_bench", "carrier_suppression_db")] == f"{truth['dsb40m_bench']['truth']['carrier_suppression_db']:.2f}"
+
+
 def test_demo_recordings_read_back_with_their_truth() -> None:
     """Each demo opens with the io layer with the rate, centre and length of its recipe,
     and the lines a perfect analyser would see are where the truth says (exact DFT of a
