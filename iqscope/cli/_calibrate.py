@@ -53,7 +53,7 @@ def register(subparsers: Any) -> None:
 
 def run(args: argparse.Namespace) -> int:
     """Measure the reference, write the calibration file, print a summary."""
-    from ..io import open_recording
+    from ._options import open_input
     from ..io._atomic import check_can_write
     from ..measure.power import make_calibration, save_calibration
 
@@ -67,7 +67,7 @@ def run(args: argparse.Namespace) -> int:
         if abs(value) > MAX_DB:  # 1e308 dB made the offset Inf and the JSON invalid
             raise UsageError(f"{flag} {value:g} is beyond +/- {MAX_DB:g} dB")
     check_can_write(args.output, force=args.force)  # before reading a long recording
-    with open_recording(args.reference, format=args.format, rate=args.rate, center=args.center) as rec:
+    with open_input(args.reference, args) as rec:
         cal = make_calibration(
             rec,
             args.level_dbm,

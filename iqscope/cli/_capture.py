@@ -16,7 +16,7 @@ from collections.abc import Callable, Iterator
 from typing import Any
 
 from ..errors import EXIT_INTERRUPTED, CaptureError, UsageError
-from ._options import MODE_CHOICES, hz, positive_hz
+from ._options import FULL_SCALE_HELP, MODE_CHOICES, add_full_scale_option, hz, positive_hz
 
 __all__ = ["register", "run_capture", "run_devices", "grade_argv"]
 
@@ -90,6 +90,7 @@ def register(subparsers: Any) -> None:
                    help="passed to grade: calibration file from 'iqscope calibrate' (power in dBm, W)")
     g.add_argument("--report", metavar="FILE", help="passed to grade: write a report file")
     g.add_argument("--json", action="store_true", help="passed to grade: print the JSON result")
+    add_full_scale_option(g, help="passed to grade: " + FULL_SCALE_HELP)
     p.set_defaults(func=run_capture)
 
     d = subparsers.add_parser(
@@ -112,7 +113,8 @@ def grade_argv(args: argparse.Namespace, path: str) -> list[str]:
     """The ``iqscope grade`` command line for a capture's ``--grade`` options."""
     argv = ["grade", path]
     for flag, value in (("--mode", args.mode), ("--limits", args.limits),
-                        ("--calibration", args.calibration), ("--report", args.report)):
+                        ("--calibration", args.calibration), ("--report", args.report),
+                        ("--full-scale", getattr(args, "full_scale", None))):
         if value is not None:
             argv += [flag, str(value)]
     if args.json:
@@ -172,7 +174,8 @@ def run_capture(args: argparse.Namespace) -> int:
         raise UsageError("--channel must be >= 0")
     grading_flags = [f for f, v in (("--mode", args.mode), ("--limits", args.limits),
                                     ("--calibration", args.calibration),
-                                    ("--report", args.report), ("--json", args.json or None))
+                                    ("--report", args.report), ("--json", args.json or None),
+                                    ("--full-scale", args.full_scale))
                      if v is not None]
     if grading_flags and not args.grade:
         raise UsageError(f"{', '.join(grading_flags)} only apply with --grade")

@@ -80,7 +80,7 @@ def _plot_prefix(args: argparse.Namespace) -> str:
 
 def run(args: argparse.Namespace) -> int:
     """Open, track, figure, render."""
-    from ..io import open_recording
+    from ._options import open_input
     from ..measure.drift import analyse_drift
     from ..report._drift import drift_document, drift_plots, render_drift
     from ..report._progress import progress_reporter
@@ -90,7 +90,7 @@ def run(args: argparse.Namespace) -> int:
 
     check_format(args.format)
     plot_prefix = _plot_prefix(args) if args.plot else None
-    with open_recording(args.file, format=args.format, rate=args.rate, center=args.center) as rec:
+    with open_input(args.file, args) as rec:
         err = make_console(stderr=True)
         show = sys.stderr.isatty() and not args.quiet
         with progress_reporter(err, f"tracking {rec.name}", enabled=show) as progress:

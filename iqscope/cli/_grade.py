@@ -156,7 +156,7 @@ def _check_outputs(args: argparse.Namespace, stems: list[str]) -> None:
 def run(args: argparse.Namespace) -> int:
     """Grade every file; return the exit status."""
     from ..grading import combine_profiles, grade, load_limits
-    from ..io import open_recording
+    from ._options import open_input
     from ..measure._context import AnalysisRequest
     from ..report._theme import make_console
 
@@ -180,7 +180,7 @@ def run(args: argparse.Namespace) -> int:
     several = len(args.files) > 1
     for path, stem in zip(args.files, stems):
         try:
-            with open_recording(path, format=args.format, rate=args.rate, center=args.center) as rec:
+            with open_input(path, args) as rec:
                 if args.annotate and rec.format != "sigmf":
                     raise UsageError(f"--annotate needs a SigMF recording; {path} is {rec.format}")
                 from ..report._progress import progress_reporter

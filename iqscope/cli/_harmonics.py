@@ -75,10 +75,10 @@ def register(subparsers: Any) -> None:
 
 
 def _levels(path: str, args: argparse.Namespace) -> Any:
-    from ..io import open_recording
+    from ._options import open_input
     from ..measure.harmonics import analyse_levels
 
-    with open_recording(path, format=args.format, rate=args.rate) as rec:
+    with open_input(path, args, center=False) as rec:
         levels = analyse_levels(rec)
         for w in rec.warnings:  # soft problems of the input (partial sample, NaN ...)
             print(f"iqscope: warning: {path}: {w}", file=sys.stderr)

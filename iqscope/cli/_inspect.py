@@ -9,8 +9,8 @@ import sys
 from typing import Any
 
 from ..dsp._levels import Levels, LevelAccumulator
-from ..io import Recording, open_recording
-from ._options import add_input_options, check_format, parse_hz
+from ..io import Recording
+from ._options import add_input_options, open_input, parse_hz
 
 __all__ = ["register", "run", "inspect_data", "parse_hz", "CHUNK_SAMPLES", "PROGRESS_MIN_SAMPLES"]
 
@@ -62,6 +62,7 @@ def inspect_data(rec: Recording, levels: Levels) -> dict[str, Any]:
         ],
         "annotations": len(rec.annotations),
         "warnings": list(rec.warnings),
+        "full_scale": rec.full_scale,
     }
 
 
@@ -70,8 +71,8 @@ def run(args: argparse.Namespace) -> int:
     from ..report._inspect import render_inspect
     from ..report._progress import progress_reporter
 
-    with open_recording(args.file, format=check_format(args.format), rate=args.rate, center=args.center) as rec:
-        acc = LevelAccumulator(rec.clip_level)
+    with open_input(args.file, args) as rec:
+        acc = LevelAccumulator(rec.clip_level, float_data=rec.is_float)
         show = sys.stderr.isatty() and rec.n_samples >= PROGRESS_MIN_SAMPLES
         with progress_reporter(None, rec.name, enabled=show) as progress:
             done = 0

@@ -31,6 +31,7 @@ from typing import Final
 
 from ..errors import OutputError, UsageError
 from ..io._atomic import atomic_write, check_can_write
+from ..io._recording import Recording
 from ..measure.locate import MODES
 
 __all__ = [
@@ -44,6 +45,9 @@ __all__ = [
     "finite_number",
     "positive_number",
     "add_input_options",
+    "add_full_scale_option",
+    "open_input",
+    "FULL_SCALE_HELP",
     "check_format",
     "check_plot_folder",
     "make_plot_folder",
@@ -56,6 +60,14 @@ MODE_CHOICES: Final[tuple[str, ...]] = tuple(MODES)
 FORMAT_HELP: Final = (
     "reader (sigmf, wav, hdf5, raw), raw datatype (cf32, ci16, ci8, cu8 ...) "
     "or a reader's file extension (cs16, sc8, h5 ...)"
+)
+
+#: Help text of ``--full-scale`` (every reading command, and ``capture --grade``).
+FULL_SCALE_HELP: Final = (
+    "the value that is full scale (0 dBFS) in the file's own units: the stored magnitude for a "
+    "float file (e.g. 2048 or 32768 for one written in ADC counts), a number of codes for an "
+    "integer file (e.g. 2048 for a 12-bit ADC in 16-bit samples); default: 1.0 for floats, the "
+    "datatype's end code for integers. Only dBFS levels depend on it"
 )
 
 _SI: Final = {"": 1.0, "k": 1e3, "m": 1e6, "M": 1e6, "g": 1e9, "G": 1e9}
@@ -139,7 +151,30 @@ def add_input_options(
     group.add_argument("--rate", metavar="HZ", type=parse_hz, help=f"sample rate, Hz (overrides {what})")
     if center:
         group.add_argument("--center", metavar="HZ", type=hz, help=f"centre frequency, Hz (overrides {what})")
+    add_full_scale_option(group)
     return group
+
+
+def add_full_scale_option(group: argparse.ArgumentParser | argparse._ArgumentGroup, help: str = FULL_SCALE_HELP) -> None:
+    """Add ``--full-scale VALUE`` (the one definition every command shares)."""
+    group.add_argument("--full-scale", metavar="VALUE", type=positive_number, dest="full_scale", help=help)
+
+
+def open_input(path: str, args: argparse.Namespace, *, center: bool = True) -> Recording:
+    """Open ``path`` with the reading options of ``args`` (``--format``, ``--rate``,
+    ``--center``, ``--full-scale``): every command opens its recordings this way."""
+    from ..io import open_recording
+
+    rec = open_recording(
+        path,
+        format=check_format(getattr(args, "format", None)),
+        rate=getattr(args, "rate", None),
+        center=getattr(args, "center", None) if center else None,
+    )
+    full_scale = getattr(args, "full_scale", None)
+    if full_scale is not None:
+        rec.set_full_scale(full_scale)
+    return rec
 
 
 def check_format(fmt: str | None) -> str | None:

@@ -106,7 +106,7 @@ def _metadata_drive(metadata: Mapping[str, Any]) -> float | None:
 
 def run(args: argparse.Namespace) -> int:
     """Analyse each recording, derive the sweep figures, print them; exit 0."""
-    from ..io import open_recording
+    from ._options import open_input
     from ..measure._context import AnalysisRequest
     from ..measure.pipeline import analyse
     from ..measure.sweep import DEFAULT_IMD3_LIMIT_DB_PEP, analyse_sweep, point_from_analysis
@@ -135,7 +135,7 @@ def run(args: argparse.Namespace) -> int:
     request = AnalysisRequest(mode=args.mode, carrier_hz=args.carrier, tone_hz=args.tone, options=options)
     points = []
     for path, drive in zip(files, drives):
-        with open_recording(path, format=args.format, rate=args.rate, center=args.center) as rec:
+        with open_input(path, args) as rec:
             if drive is None:
                 drive = _metadata_drive(rec.metadata)
                 if drive is None:

@@ -73,9 +73,9 @@ class WatchOutcome:
 
 
 def _open(path: str, args: argparse.Namespace) -> Any:
-    from ..io import open_recording
+    from ._options import open_input
 
-    return open_recording(path, format=args.format, rate=args.rate, center=args.center)
+    return open_input(path, args)
 
 
 def watch(

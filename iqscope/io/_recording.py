@@ -39,6 +39,16 @@ MIN_SAMPLE_RATE_HZ = 1e-3
 MAX_FLOAT_COMPONENT = 1e10
 
 
+def _suggested_full_scale(max_component: float) -> int | None:
+    """A power of two when ``max_component`` looks like ADC counts (within two counts below
+    ``2**k``, k = 7 .. 24): the full scale to suggest; None otherwise."""
+    for k in range(7, 25):
+        fs = 1 << k
+        if fs - 2 <= max_component <= fs:
+            return fs
+    return None
+
+
 @dataclass(frozen=True)
 class Segment:
     """A capture segment: a run of samples taken with one receiver setting."""
@@ -108,9 +118,15 @@ class Recording:
         metadata: the reader's own metadata (read-only view; format-specific).
         segments: capture segments, at least one.
         annotations: annotations carried by the file.
+        full_scale: the full scale stated with :meth:`set_full_scale` (``--full-scale``), in
+            the file's own units (codes for integers, the stored value for floats); None
+            when the datatype's own full scale is used (``2**(bits-1)`` codes, 1.0 for floats).
     """
 
     _warnings: tuple[str, ...] = ()
+    _scale: float = 1.0
+    _max_component: float = 0.0
+    full_scale: float | None = None
     _nonfinite: int = 0
     _nonfinite_until: int = 0
 
@@ -152,31 +168,98 @@ class Recording:
         """Soft problems, one sentence each: found while opening (a trailing partial sample
         ignored, a data chunk shorter than its header says ...) and, once a read met them,
         the number of non-finite samples replaced by 0."""
+        out = self._warnings
         if self._nonfinite:
-            return (
-                *self._warnings,
+            out = (
+                *out,
                 f"{self._nonfinite} non-finite sample(s) (NaN/Inf, or a component beyond "
                 f"{MAX_FLOAT_COMPONENT:.0e} x full scale) replaced by 0 in the samples read so far",
             )
-        return self._warnings
+        scale = self.scale_warning()
+        if scale is not None:
+            out = (*out, scale)
+        return out
 
     @warnings.setter
     def warnings(self, value: tuple[str, ...]) -> None:
         self._warnings = tuple(value)
 
     @property
+    def max_component(self) -> float:
+        """Largest finite |I| or |Q| of a float file in the samples read so far, as stored
+        (before any stated full scale); 0 for integer datatypes."""
+        return self._max_component
+
+    def scale_warning(self) -> str | None:
+        """The warning for a float file whose samples reach beyond 1.0 when no full scale is
+        stated (``--full-scale``), once a read has met such a sample; None otherwise.
+
+        Such a file holds ADC counts or some other scale: its dBFS levels are then relative
+        to 1.0, not to the receiver's full scale. Relative figures (dB, dBc, Hz) are not
+        affected, and it is not judged clipped for it (clipping is looked for in the data).
+        """
+        m = self._max_component
+        if not self.is_float or self.full_scale is not None or not m > 1.0:
+            return None
+        hint = _suggested_full_scale(m)
+        say = f"--full-scale {hint}" if hint is not None else "--full-scale VALUE"
+        return (
+            f"float samples reach {m:.6g}, beyond 1.0: the file is not scaled to full scale 1 (ADC counts?); "
+            f"dBFS levels are relative to 1.0, not to the receiver's full scale (give {say} to state it); "
+            "dB, dBc and Hz figures are unaffected"
+        )
+
+    def set_full_scale(self, value: float | None) -> None:
+        """State the full scale of the samples (``--full-scale VALUE``), in the file's units.
+
+        For a float datatype ``VALUE`` is the stored magnitude that is full scale (2048 for
+        a file in 12-bit ADC counts): samples are divided by it. For an integer datatype it
+        is a number of codes (2048 for a 12-bit ADC in a 16-bit container): samples are
+        scaled by ``2**(bits-1) / VALUE``. None restores the datatype's own full scale.
+        Relative figures (dBc, dB, Hz) do not depend on it; only dBFS levels do.
+
+        Raises:
+            ValueError: ``value`` is not a finite number above 0.
+        """
+        if value is None:
+            self.full_scale, self._scale = None, 1.0
+            return
+        v = float(value)
+        if not (math.isfinite(v) and v > 0):
+            raise ValueError(f"full scale {value!r} must be a finite number above 0")
+        self.full_scale = v
+        self._scale = self._native_full_scale() / v
+
+    def _native_full_scale(self) -> float:
+        from ._formats import parse_datatype
+
+        try:
+            return parse_datatype(self.datatype).full_scale
+        except ValueError:
+            return 1.0
+
+    @property
+    def is_float(self) -> bool:
+        """True for a float datatype (``cf32``, ``cf64``, ``rf32`` ...)."""
+        return self.datatype[1:2] == "f"
+
+    @property
     def clip_level(self) -> float:
         """Component magnitude (full scale 1) at or above which a sample counts as clipped.
 
         For integer datatypes the largest positive code scaled (32767/32768 for ``ci16``);
-        for float datatypes 1.0. See :attr:`iqscope.io.SampleFormat.clip_level`.
+        for float datatypes 1.0. See :attr:`iqscope.io.SampleFormat.clip_level`. With a
+        stated full scale (:meth:`set_full_scale`) the same codes in the new units. A
+        float file is never judged clipped from this level alone: the pass looks for a
+        plateau in the data (:class:`iqscope.dsp.RailTracker`).
         """
         from ._formats import parse_datatype
 
         try:
-            return parse_datatype(self.datatype).clip_level
+            level = parse_datatype(self.datatype).clip_level
         except ValueError:
-            return 1.0
+            level = 1.0
+        return level * self._scale
 
     @property
     def nonfinite_count(self) -> int:
@@ -228,13 +311,15 @@ class Recording:
         if start >= stop:
             return np.zeros(0, np.complex64)
         out = np.asarray(self._read(start, stop - start), dtype=np.complex64)
-        if self.datatype.startswith("cf"):
+        if self.is_float:
             v = np.ascontiguousarray(out).view(np.float32)
             # NaN propagates through max/min and fails the comparison: two cheap
             # reductions in the common case (faster than isfinite)
             bad: npt.NDArray[np.bool_]
-            if float(v.max()) <= MAX_FLOAT_COMPONENT and float(v.min()) >= -MAX_FLOAT_COMPONENT:
+            vmax, vmin = float(v.max()), float(v.min())
+            if vmax <= MAX_FLOAT_COMPONENT and vmin >= -MAX_FLOAT_COMPONENT:
                 bad = np.zeros(0, bool)
+                self._max_component = max(self._max_component, vmax, -vmin)
             else:
                 bad = np.asarray(~(np.abs(v) <= MAX_FLOAT_COMPONENT).reshape(-1, 2).all(axis=1))
             if bad.any():
@@ -244,8 +329,13 @@ class Recording:
                     self._nonfinite += int(np.count_nonzero(bad[lo:]))
                     self._nonfinite_until = max(self._nonfinite_until, stop)
                 out = np.where(bad, np.complex64(0), out)
+                good = np.abs(v).reshape(-1, 2)[~bad]
+                if good.size:
+                    self._max_component = max(self._max_component, float(good.max()))
             elif start <= self._nonfinite_until:
                 self._nonfinite_until = max(self._nonfinite_until, stop)
+        if self._scale != 1.0:
+            out = (out * np.float32(self._scale)).astype(np.complex64, copy=False)
         return out
 
     def chunks(

@@ -18,13 +18,25 @@ from .locate import floor_of, stats_of
 __all__ = ["level_figures", "clipping_artefact"]
 
 
-def clipping_artefact(n_clipped: int, n_samples: int, clip_level: float, pile_up: int = 0) -> Artefact | None:
-    """An ADC-clipping flag, or None when no sample reached the clip level."""
+def clipping_artefact(n_clipped: int, n_samples: int, clip_level: float, pile_up: int = 0,
+                      *, plateau: str = "") -> Artefact | None:
+    """An ADC-clipping flag, or None when no sample reached the clip level.
+
+    ``plateau`` says how the clipping was found when it was found in the data:
+    ``"component"`` (many I/Q values share the extreme value ``clip_level``) or
+    ``"envelope"`` (the envelope is flat-topped at amplitude ``clip_level``).
+    """
     if n_samples <= 0 or (n_clipped <= 0 and pile_up <= 0):
         return None
     if n_clipped > 0:
         frac = n_clipped / n_samples
-        what = f"{n_clipped} sample(s) ({100 * frac:.3g} %) at full scale (|I| or |Q| >= {clip_level:.6g})"
+        if plateau == "component":
+            what = (f"{n_clipped} sample(s) ({100 * frac:.3g} %) share the extreme |I| or |Q| value "
+                    f"{clip_level:.6g} (a plateau)")
+        elif plateau == "envelope":
+            what = f"{n_clipped} sample(s) ({100 * frac:.3g} %) sit on a flat top of the envelope at |x| = {clip_level:.6g}"
+        else:
+            what = f"{n_clipped} sample(s) ({100 * frac:.3g} %) at full scale (|I| or |Q| >= {clip_level:.6g})"
     else:
         what = f"{pile_up} samples pile up at one largest value, a sign of clipping before the file was written"
     return Artefact(
@@ -65,22 +77,34 @@ def level_figures(ctx: AnalysisContext) -> FigureSet:
     if st is None or st.n_samples == 0:
         out.measurements["clipped_fraction"] = failed("1", "no samples")
     else:
-        frac = st.n_clipped / st.n_samples
+        rec = ctx.recording
+        is_float = bool(getattr(rec, "is_float", False))
+        n_plateau, plateau_level, how = (0, None, "") if st.rails is None else st.rails.clipped_values(st.n_samples)
+        if is_float:
+            # a float file may hold ADC counts: only a plateau in the data is clipping
+            n_clipped, level = n_plateau, plateau_level
+            rule = ("samples on a plateau of the extreme |I| or |Q| value, or on a flat top of the envelope "
+                    "(found in the data; a float magnitude beyond 1 alone is not clipping)")
+        elif n_plateau > st.n_clipped:
+            n_clipped, level = n_plateau, plateau_level
+            rule = "samples on a plateau of the extreme |I| or |Q| value below the datatype's end codes"
+        else:
+            n_clipped, level, how = st.n_clipped, st.clip_level, ""
+            rule = f"samples with |I| or |Q| >= {st.clip_level:.6g} of full scale (the end codes)"
+        frac = n_clipped / st.n_samples
         out.measurements["clipped_fraction"] = Measurement(
             value=frac,
             unit="1",
             uncertainty=math.sqrt(max(frac * (1.0 - frac), 0.0) / st.n_samples),
-            note=(
-                f"fraction of samples with |I| or |Q| >= {st.clip_level:.6g} of full scale "
-                "(binomial counting uncertainty)"
-            ),
-            details={"n_clipped": st.n_clipped, "clip_level": st.clip_level},
+            note=f"fraction of {rule} (binomial counting uncertainty)",
+            details={"n_clipped": n_clipped, "clip_level": st.clip_level if level is None else level,
+                     "how": how or "end_codes"},
         )
-        pile = st.n_at_max_component if (st.n_at_max_component >= 16 and st.n_at_max_component > 1e-4 * st.n_samples
-                                         and st.max_component > 0.5) else 0
-        art = clipping_artefact(st.n_clipped, st.n_samples, st.clip_level, pile)
+        art = clipping_artefact(n_clipped, st.n_samples, st.clip_level if level is None else level,
+                                plateau=how)
         if art is not None:
             out.artefacts.append(art)
+
         if st.n_nonfinite:
             out.warnings.append(f"{st.n_nonfinite} non-finite sample(s) (NaN/Inf, or a component beyond "
                                 "1e10 x full scale) counted as 0")

@@ -35,7 +35,7 @@ import numpy as np
 import numpy.typing as npt
 from scipy import fft as sp_fft
 
-from ..dsp._levels import Levels
+from ..dsp._levels import Levels, RailTracker
 from ..dsp._lines import (
     BandPower,
     LinePower,
@@ -119,6 +119,8 @@ class StreamStats:
     """Largest |Re x| or |Im x| seen."""
     n_at_max_component: int = 0
     """Samples whose |Re x| or |Im x| equals ``max_component`` (a pile-up hints at clipping)."""
+    rails: RailTracker | None = None
+    """The clipping-plateau tracker of the pass (:class:`iqscope.dsp.RailTracker`)."""
     block_mean_power: npt.NDArray[np.float64] = field(default_factory=lambda: np.zeros(0))
     """Mean |x|^2 per envelope block."""
     block_peak_power: npt.NDArray[np.float64] = field(default_factory=lambda: np.zeros(0))

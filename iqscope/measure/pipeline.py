@@ -51,6 +51,7 @@ import numpy.typing as npt
 from scipy import fft as sp_fft
 
 from ..dsp._envelope import block_envelope
+from ..dsp._levels import RailTracker
 from ..dsp._noise import noise_floor
 from ..dsp._spectrum import AveragedSpectrum, SpectrumAccumulator, SubbandCapture
 from ..io._recording import MAX_FLOAT_COMPONENT, Recording
@@ -243,6 +244,7 @@ class _Levels:
         self.nonfinite = 0
         self.max_comp = 0.0
         self.n_at_max = 0
+        self.rails = RailTracker()
 
     def update(self, x: npt.NDArray[np.complex64]) -> tuple[npt.NDArray[np.complex64], npt.NDArray[np.float32]]:
         v = x.view(np.float32)
@@ -267,6 +269,8 @@ class _Levels:
             self.n_at_max = int(np.count_nonzero(np.abs(v) == vmax))
         elif vmax == self.max_comp and vmax > 0:
             self.n_at_max += int(np.count_nonzero(np.abs(v) == vmax))
+        self.rails.update_components(v)
+        self.rails.update_power(p)
         return x, p
 
 
@@ -342,6 +346,7 @@ def _stream(
         n_nonfinite=lev.nonfinite,
         max_component=lev.max_comp,
         n_at_max_component=lev.n_at_max,
+        rails=lev.rails,
         block_mean_power=np.concatenate(env_mean) if env_mean else np.zeros(0),
         block_peak_power=np.concatenate(env_peak) if env_peak else np.zeros(0),
         block_times_s=np.asarray(times, dtype=np.float64),
