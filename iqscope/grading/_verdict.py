@@ -29,7 +29,7 @@ from __future__ import annotations
 
 import difflib
 from collections.abc import Mapping
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, replace
 from typing import Any, Final, Literal
 
 from ..errors import EXIT_FAIL, EXIT_OK, EXIT_WARN
@@ -74,6 +74,21 @@ APPLIES_TO: Final[Mapping[str, frozenset[str]]] = {
     "imd3_db_pep": frozenset({"two-tone"}),
 }
 
+
+#: Figures measured at the carrier the user placed: when the signal puts its carrier
+#: elsewhere (``signal.carrier_error_hz``) their verdicts are inconclusive, never a pass.
+CARRIER_DEPENDENT: Final = frozenset({
+    "carrier_suppression_db",
+    "carrier_below_pep_db",
+    "opposite_sideband_suppression_db",
+    "sideband_balance_db",
+    "modulation_index",
+    "frequency_offset_hz",
+})
+
+#: Figures whose meaning depends on the mode: on a low-confidence automatic mode
+#: (``signal.mode_confidence == "low"``) their verdicts are inconclusive, never a pass.
+MODE_DEPENDENT: Final = frozenset(APPLIES_TO) | {"frequency_offset_hz"}
 
 #: Measurements a limits profile may hold that one recording cannot give; :func:`grade`
 #: lists their rules under "not graded" with the command that grades them.
@@ -246,7 +261,7 @@ def grade(analysis: Analysis, limits: LimitsProfile | None = None) -> GradeResul
     for name, m in analysis.measurements.items():
         rule = by_name.get(name)
         if rule is not None:
-            verdicts.append(_judge(name, m, rule, mode))
+            verdicts.append(_doubt(_judge(name, m, rule, mode), analysis))
     for rule in rules:
         name = rule.measurement
         if name in analysis.measurements:
@@ -270,6 +285,33 @@ def grade(analysis: Analysis, limits: LimitsProfile | None = None) -> GradeResul
         default_limits=default,
         skipped=tuple(skipped),
     )
+
+
+def _doubt(v: Verdict, analysis: Analysis) -> Verdict:
+    """Make a verdict inconclusive when the signal does not support where it was measured.
+
+    A carrier the signal puts elsewhere (``carrier_error_hz``) or a guessed mode (auto,
+    low confidence) leaves the carrier- and mode-dependent figures without meaning: the
+    verdict is "warn", inconclusive, with the reason, and no transmitter advice (its
+    figure may be nobody's fault but the options').
+    """
+    sig = analysis.signal
+    reason = ""
+    advice = ""
+    if sig.carrier_error_hz is not None and v.measurement in CARRIER_DEPENDENT:
+        found = sig.carrier_found_offset_hz
+        where = f"{found:.2f} Hz" if found is not None else "elsewhere"
+        reason = (
+            f"inconclusive: measured at the carrier placed at {sig.carrier_offset_hz:.2f} Hz, but the signal "
+            f"puts its carrier at {where} ({sig.carrier_found_how}; error {sig.carrier_error_hz:+.2f} Hz)"
+        )
+        advice = "check --carrier (and --tone): give the carrier where the signal has it, then grade again"
+    elif sig.mode_detected and sig.mode_confidence == "low" and v.measurement in MODE_DEPENDENT:
+        reason = f"inconclusive: the mode {sig.mode!r} is a guess ({sig.how})"
+        advice = "give --mode (and --carrier or --tone) so this figure can be graded"
+    if not reason:
+        return v
+    return replace(v, status="warn", reason=reason, advice=advice, inconclusive=True, marginal=False)
 
 
 def _absent(rule: Rule, mode: str, present: Mapping[str, Measurement]) -> Verdict:

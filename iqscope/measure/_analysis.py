@@ -63,14 +63,33 @@ class SignalInfo:
     """How the carrier was located (e.g. "given with --carrier", "centre of symmetry")."""
     mode_detected: bool = False
     """True when the mode came from ``--mode auto``."""
+    mode_confidence: str = "given"
+    """How sure the mode is: "given" (named with ``--mode``), "high" (auto, the signal's
+    structure is unambiguous) or "low" (auto, a guess: mode-dependent figures are not
+    graded as a pass). See docs/measurements.md, "Locating the signal"."""
+    carrier_error_hz: float | None = None
+    """Where the signal's own structure puts the carrier minus where the user put it
+    (``--carrier``, or a test-tone line minus ``--tone``), Hz; None when they agree
+    within the resolution or nothing in the signal places the carrier."""
+    carrier_found_offset_hz: float | None = None
+    """With ``carrier_error_hz``: the carrier offset the signal's structure gives, Hz."""
+    carrier_found_how: str = ""
+    """With ``carrier_error_hz``: what in the signal placed it."""
 
     def to_json(self) -> dict[str, Any]:
-        return {
+        out: dict[str, Any] = {
             "mode": self.mode,
             "carrier_offset_hz": finite_or_none(self.carrier_offset_hz),
             "carrier_frequency_hz": finite_or_none(self.carrier_frequency_hz),
             "how": self.how,
+            "mode_detected": self.mode_detected,
+            "mode_confidence": self.mode_confidence,
+            "carrier_error_hz": finite_or_none(self.carrier_error_hz),
         }
+        if self.carrier_error_hz is not None:
+            out["carrier_found_offset_hz"] = finite_or_none(self.carrier_found_offset_hz)
+            out["carrier_found_how"] = self.carrier_found_how
+        return out
 
 
 @dataclass(frozen=True)

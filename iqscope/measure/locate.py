@@ -28,7 +28,7 @@ A two-tone SSB test signal is symmetric about its midpoint and is classified as 
 from __future__ import annotations
 
 import math
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, replace
 from typing import Any, Final
 
 import numpy as np
@@ -66,6 +66,8 @@ __all__ = [
     "db_ratio",
     "compute_layout",
     "symmetry_centre",
+    "signal_warnings",
+    "carrier_tolerance_hz",
 ]
 
 #: Modes a request may name.
@@ -454,14 +456,31 @@ def locate_signal(
         raise UsageError(f"unknown --mode {mode!r}; use one of {', '.join(MODES)}")
     fs = spectrum.sample_rate_hz
     given = None if carrier_hz is None else carrier_offset_from_arg(carrier_hz, fs, center_hz)
+    prep = _prepare(spectrum, floor, given, mode)
+    sig = _classify(spectrum, floor, mode, prep, given=given, tone_hz=tone_hz, center_hz=center_hz,
+                    keyed_fraction=keyed_fraction)
+    return _check_carrier(spectrum, floor, sig, prep, given=given, tone_hz=tone_hz)
 
-    def info(m: str, f0: float | None, how: str, detected: bool) -> SignalInfo:
-        rf = None if (f0 is None or center_hz is None) else float(center_hz) + f0
-        return SignalInfo(mode=m, carrier_offset_hz=f0, carrier_frequency_hz=rf, how=how, mode_detected=detected)
 
+@dataclass(frozen=True)
+class _Prep:
+    """Lines and masks shared by the classification and the carrier check."""
+
+    usable: bool
+    peaks: list[Peak]
+    """Lines above the noise, strongest first, without a receiver DC line."""
+    h: int
+    dc_lobe: npt.NDArray[np.bool_]
+    """Bins of a receiver DC line left out of the classification."""
+    carrier_at_dc: bool = False
+    """The line at the capture centre is the carrier (far stronger than a DC line)."""
+
+
+def _prepare(spectrum: Spectrum, floor: NoiseFloor, given: float | None, mode: str) -> _Prep:
     usable = spectrum.n_averages > 0 and math.isfinite(floor.psd) and spectrum.psd.size >= 8
     peaks = find_peaks(spectrum, floor.psd, max_peaks=16) if usable else []
     h = lobe_half_width_bins(spectrum) if usable else 5
+    carrier_at_dc = False
     # A line at the capture centre is the receiver's DC offset unless --carrier points
     # there or nothing else stands above the noise (same rule as drift.plan_lines); it
     # is left out of the classification and its lobe out of the spectrum used for
@@ -477,9 +496,36 @@ def locate_signal(
             peaks, spectrum.bin_hz, hints=(given,), hint_tol_hz=2 * lobe_hz, signal_elsewhere=elsewhere
         )
         if split.dropped:
-            peaks = list(split.kept)
-            dc_lobe = in_lobe
+            if given is None and mode in ("auto", "am", "cw") and _dc_is_carrier(spectrum, floor, peaks, split.dropped, h):
+                carrier_at_dc = True
+            else:
+                peaks = list(split.kept)
+                dc_lobe = in_lobe
 
+    return _Prep(usable, peaks, h, dc_lobe, carrier_at_dc)
+
+
+def _classify(
+    spectrum: Spectrum,
+    floor: NoiseFloor,
+    mode: str,
+    prep: _Prep,
+    *,
+    given: float | None,
+    tone_hz: float | None,
+    center_hz: float | None,
+    keyed_fraction: float,
+) -> SignalInfo:
+    """The mode and the carrier (see :func:`locate_signal`), before the carrier check."""
+
+    def info(m: str, f0: float | None, how: str, detected: bool, confidence: str = "high") -> SignalInfo:
+        rf = None if (f0 is None or center_hz is None) else float(center_hz) + f0
+        return SignalInfo(
+            mode=m, carrier_offset_hz=f0, carrier_frequency_hz=rf, how=how, mode_detected=detected,
+            mode_confidence=confidence if detected else "given",
+        )
+
+    usable, peaks, h, dc_lobe = prep.usable, prep.peaks, prep.h, prep.dc_lobe
     # -- explicit modes ---------------------------------------------------------------
     if mode in ("usb", "lsb"):
         if given is not None:
@@ -786,3 +832,106 @@ def compute_layout(
         lines_dominate=bool(lines_dominate),
         tone_lines=tuple(tones),
     )
+
+
+def _dc_is_carrier(
+    spectrum: Spectrum, floor: NoiseFloor, peaks: list[Peak], dropped: tuple[Peak, ...], h: int
+) -> bool:
+    """True when the line at the capture centre is an AM carrier, not the receiver's DC line.
+
+    An AM carrier holds at least 2/3 of the emission power (m <= 1: both sidebands
+    together carry m^2/2 of the carrier power, AM theory) and has symmetric sidebands
+    about itself; a receiver's DC offset is a bare line, normally tens of dB below the
+    signal. So the centre line is kept as the carrier when it holds at least
+    ``_CARRIER_FRACTION`` of the emission power, stands 3 dB above every other line and
+    has sidebands symmetric about it above ``_AM_SIDEBAND_DBC``.
+    """
+    dc = max(dropped, key=lambda p: p.power)
+    s = _excess(spectrum, floor.psd)
+    total = float(s.sum()) * spectrum.bin_hz
+    if total <= 0 or dc.power < _CARRIER_FRACTION * total:
+        return False
+    others = [p for p in peaks if p not in dropped]
+    if not others or max(p.power for p in others) * 2.0 > dc.power:
+        return False
+    return _am_or_cw(spectrum, s, dc.frequency_hz, dc.power, h, 0.0) == "am"
+
+
+def carrier_tolerance_hz(spectrum: Spectrum) -> float:
+    """How far the user's carrier may sit from the signal's own before it is an error, Hz.
+
+    Two bins: the carrier figures search the line within +/- 2 bins of the carrier
+    (``line_power(search_bins=2)``); beyond that they measure the noise beside the
+    line, not the line.
+    """
+    return 2.0 * spectrum.bin_hz
+
+
+def _check_carrier(
+    spectrum: Spectrum,
+    floor: NoiseFloor,
+    sig: SignalInfo,
+    prep: _Prep,
+    *,
+    given: float | None,
+    tone_hz: float | None,
+) -> SignalInfo:
+    """Compare the carrier the user placed with where the signal's own structure puts it.
+
+    The user's carrier always wins (figures are measured there), but when the signal
+    places its carrier elsewhere by more than :func:`carrier_tolerance_hz` the result
+    carries ``carrier_error_hz = found - given`` and grading marks the carrier-dependent
+    verdicts inconclusive. What places the carrier: AM/CW the carrier line (the strongest
+    line); DSB the centre of symmetry of the sidebands (with a tone, the mean of the two
+    sideband lines); SSB with ``--tone`` and ``--carrier`` the test-tone line minus the tone.
+    """
+    if given is None or sig.carrier_offset_hz is None or not prep.usable or not prep.peaks:
+        return sig
+    f_user = float(sig.carrier_offset_hz)
+    mode = sig.mode
+    h = prep.h
+    found: float | None = None
+    how = ""
+    strongest = prep.peaks[0]
+    if mode in ("am", "cw"):
+        found, how = strongest.frequency_hz, f"carrier line at {strongest.frequency_hz:.2f} Hz (the strongest line)"
+    elif mode == "dsb":
+        s = np.where(prep.dc_lobe, 0.0, _excess(spectrum, floor.psd))
+        fd, how_d = _dsb_centre(spectrum, s, prep.peaks, h)
+        if fd is not None and _symmetry_about(s, spectrum, fd) >= _SYMMETRY_DSB:
+            found, how = fd, how_d
+    elif mode in ("usb", "lsb") and tone_hz is not None:
+        sgn = 1.0 if mode == "usb" else -1.0
+        f_line = strongest.frequency_hz
+        # A tone line on the other side of --carrier is a reversed sideband (sidebands.py), not this.
+        if sgn * (f_line - f_user) > 0:
+            found = f_line - sgn * tone_hz
+            how = f"test-tone line at {f_line:.2f} Hz minus --tone {tone_hz:g} Hz"
+    if found is None and sig.mode_detected and mode in ("usb", "lsb") and tone_hz is None:
+        # Auto mode called it single sideband about --carrier: a spectrum symmetric about
+        # another centre (with the gap a DSB leaves there) is a DSB whose carrier is that centre.
+        s = np.where(prep.dc_lobe, 0.0, _excess(spectrum, floor.psd))
+        fd, how_d = _dsb_centre(spectrum, s, prep.peaks, h)
+        if fd is not None and _symmetry_about(s, spectrum, fd) >= _SYMMETRY_DSB and _centre_gap(s, spectrum, fd, h):
+            found, how = fd, f"{how_d}: the signal is symmetric about it (DSB)"
+    if found is None or abs(found - f_user) <= carrier_tolerance_hz(spectrum):
+        return sig
+    return replace(sig, carrier_error_hz=float(found - f_user), carrier_found_offset_hz=float(found),
+                   carrier_found_how=how, mode_confidence="low" if sig.mode_detected else sig.mode_confidence)
+
+
+def signal_warnings(sig: SignalInfo) -> tuple[str, ...]:
+    """Warnings about where the signal was placed (carrier error, a low-confidence mode)."""
+    out: list[str] = []
+    if sig.carrier_error_hz is not None and sig.carrier_offset_hz is not None:
+        out.append(
+            f"the carrier was placed at {sig.carrier_offset_hz:.2f} Hz ({sig.how}), but the signal puts it at "
+            f"{sig.carrier_found_offset_hz:.2f} Hz ({sig.carrier_found_how}), {sig.carrier_error_hz:+.2f} Hz away: "
+            "figures measured at the carrier are not graded as a pass; check --carrier / --tone"
+        )
+    if sig.mode_detected and sig.mode_confidence == "low":
+        out.append(
+            f"the mode was guessed ({sig.mode}: {sig.how}); figures that depend on the mode are not graded as a "
+            "pass: give --mode (and --carrier) to grade them"
+        )
+    return tuple(out)

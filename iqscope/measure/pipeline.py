@@ -65,7 +65,7 @@ from .designator import designator_figures
 from .drift import drift_figures, plan_capture
 from .imd import two_tone_figures
 from .levels import level_figures
-from .locate import CoreContext, StreamStats, compute_layout, locate_signal
+from .locate import CoreContext, StreamStats, compute_layout, locate_signal, signal_warnings
 from .modulation import modulation_figures
 from .power import power_figures
 from .sidebands import sideband_figures
@@ -515,6 +515,7 @@ def analyse(
         center_hz=recording.center_frequency_hz,
         keyed_fraction=stats.keyed_fraction,
     )
+    warnings.extend(w for w in signal_warnings(signal) if w not in warnings)
     layout = compute_layout(spectrum, floor, signal, tone_hz=request.tone_hz)
     signal_power = 0.0
     if layout.has_signal:
