@@ -157,8 +157,10 @@ def test_truncated_hdf5(tmp_path: Path, capsys: pytest.CaptureFixture[str]) -> N
 
 
 @pytest.mark.parametrize("kind", ["sigmf", "raw"])
-def test_trailing_partial_sample_warns(tmp_path: Path, capsys: pytest.CaptureFixture[str], kind: str) -> None:
-    """Consistent rule: analyse the whole samples, say so in warnings (exit 0)."""
+def test_trailing_partial_sample_is_truncation(tmp_path: Path, capsys: pytest.CaptureFixture[str], kind: str) -> None:
+    """Consistent rule: a file that ends inside a sample was cut short: refused (exit 3, one
+    line naming it as truncated) unless --accept-truncated; then the whole samples are
+    analysed and the warnings say so (exit 0)."""
     if kind == "sigmf":
         meta = _sigmf(tmp_path, n=10, datatype="ci16_le")
         with open(tmp_path / "r.sigmf-data", "ab") as fh:
@@ -167,7 +169,9 @@ def test_trailing_partial_sample_warns(tmp_path: Path, capsys: pytest.CaptureFix
     else:
         (tmp_path / "p.cs16").write_bytes(bytes(4 * 10 + 3))
         target = [str(tmp_path / "p.cs16"), "--rate", "1000"]
-    data = _json_ok(capsys, *target)
+    line = _assert_refused(capsys, *target, match="truncated")
+    assert "partial sample" in line and "--accept-truncated" in line
+    data = _json_ok(capsys, *target, "--accept-truncated")
     assert data["n_samples"] == 10
     assert any("partial sample" in w for w in data["warnings"])
 
@@ -257,9 +261,12 @@ def test_lying_chunk_size_before_data(tmp_path: Path, capsys: pytest.CaptureFixt
 
 
 def test_lying_data_chunk_size(tmp_path: Path, capsys: pytest.CaptureFixture[str]) -> None:
-    """A data chunk longer than the file (recording cut short): read what is there, warn."""
+    """A data chunk longer than the file (recording cut short): refused as truncated (exit 3),
+    or with --accept-truncated read what is there, with a warning."""
     (tmp_path / "d.wav").write_bytes(_wav_bytes(bytes(400), data_size=4_000_000))
-    data = _json_ok(capsys, str(tmp_path / "d.wav"))
+    line = _assert_refused(capsys, str(tmp_path / "d.wav"), match="truncated")
+    assert "d.wav" in line and "claims 4000000 bytes" in line
+    data = _json_ok(capsys, str(tmp_path / "d.wav"), "--accept-truncated")
     assert data["n_samples"] == 100
     assert any("claims" in w for w in data["warnings"])
 

@@ -8,10 +8,12 @@ the README and ``docs/robustness.md``):
 
 * unusable input: exit status 3, nothing on stdout, exactly one line on stderr that
   starts ``iqscope: error:`` and names the file, never a traceback;
-* usable input with a soft problem (a trailing partial sample, a WAV data chunk that
-  claims more bytes than the file holds, NaN samples): the command runs (grade 0/1/2,
+* usable input with a soft problem (NaN samples): the command runs (grade 0/1/2,
   harmonics 0/1/2, the others 0) and says what it met (the warning text appears on
-  stdout or stderr).
+  stdout or stderr);
+* truncated input (a trailing partial sample, a WAV data chunk that claims more bytes
+  than the file holds): unusable (exit 3) unless ``--accept-truncated``, with which it
+  is usable with a warning.
 
 The files are tiny (4096 samples) so the ~120 cases stay fast. Also here: a figure
 provider that raises (item 3 of the issue), no output over an existing file without
@@ -225,14 +227,14 @@ CASES: dict[str, tuple[Callable[[Path], Path], bool, str]] = {
     "empty": (_empty, False, "empty"),
     "truncated-wav": (_truncated_wav, False, "truncated"),
     "truncated-hdf5": (_truncated_hdf5, False, ""),
-    "trailing-partial-sample": (_partial_sample, True, "partial sample"),
+    "trailing-partial-sample": (_partial_sample, False, "truncated"),
     "malformed-json": (_malformed_json, False, "malformed JSON"),
     "unknown-datatype": (_unknown_datatype, False, "datatype"),
     "absurd-rate": (_absurd_rate, False, "sample rate"),
     "capture-past-end": (_capture_past_end, False, "past the end"),
     "mono-wav": (_mono_wav, False, "mono"),
     "lying-chunk-before-data": (_lying_chunk_before_data, False, "past the end"),
-    "lying-data-chunk-size": (_lying_data_size, True, "claims"),
+    "lying-data-chunk-size": (_lying_data_size, False, "truncated"),
     "hdf5-without-dataset": (_hdf5_unusable, False, "no usable"),
     "nan-samples": (_nan_samples, True, "non-finite"),
     "absurd-float-values": (_absurd_float_values, True, "non-finite"),
@@ -303,6 +305,26 @@ def test_bad_input_every_command(
     assert len(lines) == 1 and lines[0].startswith("iqscope: error: "), err
     assert _stem(target) in lines[0], lines[0]
     assert text.lower() in lines[0].lower(), lines[0]
+
+
+#: Truncated files: refused above, read with --accept-truncated (text of the warning).
+TRUNCATED: dict[str, tuple[Callable[[Path], Path], str]] = {
+    "trailing-partial-sample": (_partial_sample, "partial sample"),
+    "lying-data-chunk-size": (_lying_data_size, "claims"),
+}
+
+
+@pytest.mark.parametrize("cmd", list(USABLE_STATUS))
+@pytest.mark.parametrize("case", list(TRUNCATED))
+def test_accept_truncated_every_command(
+    tmp_path: Path, capsys: pytest.CaptureFixture[str], case: str, cmd: str
+) -> None:
+    build, text = TRUNCATED[case]
+    target = build(tmp_path)
+    status, out, err = _run(capsys, _argv(cmd, target, tmp_path) + ["--accept-truncated"])
+    assert "Traceback" not in err and "Traceback" not in out
+    assert status in USABLE_STATUS[cmd], (status, err)
+    assert text.lower() in (out + err).lower(), f"{cmd} did not report {text!r}:\n{out}\n{err}"
 
 
 def _deny(monkeypatch: pytest.MonkeyPatch, victim: Path) -> None:

@@ -148,7 +148,9 @@ def test_lying_data_size_reads_what_is_there(tmp_path: Path) -> None:
     codes = np.arange(40, dtype="<i2")
     body = struct.pack("<HHIIHH", 1, 2, 1000, 4000, 4, 16)
     (tmp_path / "l.wav").write_bytes(_riff(body, codes.tobytes(), data_size=10_000))
-    with open_recording(tmp_path / "l.wav") as rec:
+    with pytest.raises(FormatError, match="truncated"):
+        open_recording(tmp_path / "l.wav")
+    with open_recording(tmp_path / "l.wav", accept_truncated=True) as rec:
         assert rec.n_samples == 20
         assert any("claims" in w for w in rec.warnings)
 

@@ -152,6 +152,12 @@ def add_input_options(
     if center:
         group.add_argument("--center", metavar="HZ", type=hz, help=f"centre frequency, Hz (overrides {what})")
     add_full_scale_option(group)
+    group.add_argument(
+        "--accept-truncated",
+        action="store_true",
+        help=f"read what a truncated {what.split()[-1].rstrip('s')} holds (a WAV shorter than its header says, a "
+        "partial last sample) instead of refusing it; the report says so",
+    )
     return group
 
 
@@ -160,9 +166,13 @@ def add_full_scale_option(group: argparse.ArgumentParser | argparse._ArgumentGro
     group.add_argument("--full-scale", metavar="VALUE", type=positive_number, dest="full_scale", help=help)
 
 
-def open_input(path: str, args: argparse.Namespace, *, center: bool = True) -> Recording:
+def open_input(
+    path: str, args: argparse.Namespace, *, center: bool = True, accept_truncated: bool | None = None
+) -> Recording:
     """Open ``path`` with the reading options of ``args`` (``--format``, ``--rate``,
-    ``--center``, ``--full-scale``): every command opens its recordings this way."""
+    ``--center``, ``--full-scale``, ``--accept-truncated``): every command opens its
+    recordings this way. ``accept_truncated`` overrides the option (``watch`` follows a
+    file still being written, which is shorter than its header by nature)."""
     from ..io import open_recording
 
     rec = open_recording(
@@ -170,6 +180,8 @@ def open_input(path: str, args: argparse.Namespace, *, center: bool = True) -> R
         format=check_format(getattr(args, "format", None)),
         rate=getattr(args, "rate", None),
         center=getattr(args, "center", None) if center else None,
+        accept_truncated=bool(getattr(args, "accept_truncated", False)) if accept_truncated is None
+        else accept_truncated,
     )
     full_scale = getattr(args, "full_scale", None)
     if full_scale is not None:

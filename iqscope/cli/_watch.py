@@ -75,7 +75,7 @@ class WatchOutcome:
 def _open(path: str, args: argparse.Namespace) -> Any:
     from ._options import open_input
 
-    return open_input(path, args)
+    return open_input(path, args, accept_truncated=True)
 
 
 def watch(

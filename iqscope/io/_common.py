@@ -196,3 +196,15 @@ def resolve_rate(override: float | None, from_file: Any, path: Path) -> float:
     if override is not None:
         return check_sample_rate(override, path)
     return check_sample_rate(from_file, path)
+
+
+#: What a refusal of a truncated file tells the user to do.
+ACCEPT_TRUNCATED_HINT = "give --accept-truncated to read what is there"
+
+
+def truncated(what: str, path: Path | None, accept: bool, warnings: list[str]) -> None:
+    """A file ends before its own structure says it should: refuse it (``FormatError``,
+    exit 3, naming it as truncated) unless ``accept``; then add ``what`` to ``warnings``."""
+    if not accept:
+        raise FormatError(f"truncated: {what}; {ACCEPT_TRUNCATED_HINT}", path)
+    warnings.append(f"truncated: {what}; reading the whole samples there are (--accept-truncated)")

@@ -10,7 +10,7 @@ from ``center`` or the sidecar's ``center_frequency_hz``.
 from __future__ import annotations
 
 from ..errors import FormatError, MetadataError, UsageError
-from ._common import read_sidecar, resolve_rate
+from ._common import read_sidecar, resolve_rate, truncated
 from ._filerec import ByteRun, FileRecording, file_size
 from ._formats import parse_datatype
 from ._recording import Recording, Segment
@@ -57,9 +57,10 @@ def open_raw(req: OpenRequest) -> Recording:
     rest = size - n * fmt.sample_bytes
     if n == 0:
         raise FormatError(f"the file holds no complete {fmt.name} sample ({size} bytes)", path)
-    warnings: tuple[str, ...] = ()
+    warnings: list[str] = []
     if rest:
-        warnings = (f"the file ends with a partial sample ({rest} of {fmt.sample_bytes} bytes); it is ignored",)
+        truncated(f"the file ends with a partial sample ({rest} of {fmt.sample_bytes} bytes)",
+                  path, req.accept_truncated, warnings)
     meta = {"sidecar": side} if side else {}
     return FileRecording(
         data_path=path,
@@ -71,7 +72,7 @@ def open_raw(req: OpenRequest) -> Recording:
         center_frequency_hz=center,
         metadata=meta,
         segments=(Segment(0, center, side.get("datetime")),),
-        warnings=warnings,
+        warnings=tuple(warnings),
     )
 
 

@@ -54,6 +54,8 @@ class OpenRequest:
     """Centre frequency override, Hz."""
     implied_datatype: str | None = None
     """Datatype implied by the file-name extension (raw files such as ``.cu8``)."""
+    accept_truncated: bool = False
+    """Read what a truncated file holds (with a warning) instead of refusing it."""
 
 
 @dataclass(frozen=True)
@@ -205,6 +207,7 @@ def open_recording(
     format: str | None = None,
     rate: float | None = None,
     center: float | None = None,
+    accept_truncated: bool = False,
 ) -> Recording:
     """Open an I/Q recording and return a streaming :class:`Recording`.
 
@@ -223,6 +226,12 @@ def open_recording(
         SigMF without ``core:sample_rate``).
     center : float, optional
         Centre frequency in Hz; overrides the file's metadata and sidecar.
+    accept_truncated : bool
+        A file that ends before its own structure says it should (a WAV data chunk
+        promising more bytes than the file holds, a partial last sample in a WAV, raw or
+        SigMF dataset) is refused with a :class:`~iqscope.errors.FormatError` naming it
+        as truncated, unless this is True: then its whole samples are read and
+        :attr:`Recording.warnings` says what was missing (``--accept-truncated``).
 
     Returns
     -------
@@ -259,5 +268,6 @@ def open_recording(
         rate=rate,
         center=center,
         implied_datatype=implied,
+        accept_truncated=bool(accept_truncated),
     )
     return spec.open(req)

@@ -34,7 +34,7 @@ import numpy.typing as npt
 
 from ..errors import FormatError, InputMissingError, MetadataError
 from ._atomic import atomic_write, atomic_write_text, check_can_write
-from ._common import check_center, parse_json_bytes, read_json_file, resolve_rate, safe_sibling
+from ._common import check_center, parse_json_bytes, read_json_file, resolve_rate, safe_sibling, truncated
 from ._filerec import ByteRun, FileRecording, file_size
 from ._formats import SampleFormat, parse_datatype
 from ._recording import Annotation, Recording, Segment, check_sample_rate
@@ -234,9 +234,8 @@ def _build(
                 meta_path,
             )
         if last and avail % frame:
-            warnings.append(
-                f"the data ends with a partial sample ({avail % frame} of {frame} bytes); it is ignored"
-            )
+            truncated(f"the data ends with a partial sample ({avail % frame} of {frame} bytes)",
+                      data_path, req.accept_truncated, warnings)
         runs.append(ByteRun(start, base_offset + byte0, n))
         n_total = start + n
 

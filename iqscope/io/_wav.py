@@ -29,7 +29,7 @@ import numpy.typing as npt
 
 from ..errors import FormatError, MetadataError
 from ._atomic import atomic_write, atomic_write_text, check_can_write
-from ._common import read_sidecar, resolve_rate, sidecar_path
+from ._common import read_sidecar, resolve_rate, sidecar_path, truncated
 from ._filerec import ByteRun, FileRecording, file_size, open_readonly
 from ._formats import SampleFormat, parse_datatype
 from ._recording import Recording, Segment, check_sample_rate
@@ -63,8 +63,12 @@ def _sniff(head: bytes) -> bool:
     return len(head) >= 12 and head[:4] in (b"RIFF", b"RF64", b"BW64") and head[8:12] == b"WAVE"
 
 
-def parse_wav_header(path: Path) -> WavInfo:
-    """Walk the RIFF chunks of ``path`` and return the format and data location."""
+def parse_wav_header(path: Path, accept_truncated: bool = False) -> WavInfo:
+    """Walk the RIFF chunks of ``path`` and return the format and data location.
+
+    A data chunk promising more bytes than the file holds is a truncated recording:
+    refused (``FormatError``) unless ``accept_truncated`` (then read as far as it goes).
+    """
     import os
 
     size = file_size(path)
@@ -80,6 +84,7 @@ def parse_wav_header(path: Path) -> WavInfo:
         pos = 12
         fmt_chunk: bytes | None = None
         warnings: list[str] = []
+        break_info: tuple[int, int] | None = None
         while True:
             hdr = os.pread(fd, 8, pos)
             if len(hdr) < 8:
@@ -108,11 +113,11 @@ def parse_wav_header(path: Path) -> WavInfo:
                     csize = ds64_data
                 available = size - body
                 if csize > available:
-                    warnings.append(
-                        f"the data chunk claims {csize} bytes but the file holds {available}; "
-                        "reading what is there (recording cut short?)"
-                    )
+                    promised, held = csize, available
                     csize = available
+                    break_info = (promised, held)
+                else:
+                    break_info = None
                 break
             if cid not in (b"fmt ", b"ds64") and body + csize > size:
                 raise FormatError(
@@ -151,21 +156,31 @@ def parse_wav_header(path: Path) -> WavInfo:
         raise FormatError(
             f"WAV block align {align} does not match {channels} x {bits}-bit samples (inconsistent header)", path
         )
+    if break_info is not None:
+        promised, held = break_info
+        frame = fmt.sample_bytes
+        secs = f" ({promised // frame / rate:.4g} s)" if rate > 0 else ""
+        truncated(
+            f"the data chunk claims {promised} bytes{secs} but the file holds {held} "
+            f"({held // frame} samples)",
+            path, accept_truncated, warnings,
+        )
     return WavInfo(fmt, channels, rate, body, csize, warnings)
 
 
 def open_wav(req: OpenRequest) -> Recording:
     """Open a two-channel I/Q WAV file."""
     path = req.path
-    info = parse_wav_header(path)
+    info = parse_wav_header(path, req.accept_truncated)
     warnings = info.warnings
     side = read_sidecar(path)
     rate = resolve_rate(req.rate, info.rate if info.rate > 0 else None, path)
     center = req.center if req.center is not None else side.get("center_frequency_hz")
     n = info.data_bytes // info.fmt.sample_bytes
     rest = info.data_bytes - n * info.fmt.sample_bytes
-    if rest:
-        warnings.append(f"the data ends with a partial sample ({rest} of {info.fmt.sample_bytes} bytes); it is ignored")
+    if rest and not any(w.startswith("truncated:") for w in warnings):
+        truncated(f"the data ends with a partial sample ({rest} of {info.fmt.sample_bytes} bytes)",
+                  path, req.accept_truncated, warnings)
     if n == 0:
         raise FormatError("the WAV data chunk holds no complete sample", path)
     meta = {"wav": {"channels": info.channels, "sample_rate": info.rate, "data_offset": info.data_offset}}
