@@ -309,6 +309,10 @@ def _doubt(v: Verdict, analysis: Analysis) -> Verdict:
     elif sig.mode_detected and sig.mode_confidence == "low" and v.measurement in MODE_DEPENDENT:
         reason = f"inconclusive: the mode {sig.mode!r} is a guess ({sig.how})"
         advice = "give --mode (and --carrier or --tone) so this figure can be graded"
+    if not reason and v.value is None and sig.carrier_offset_hz is None and v.measurement in CARRIER_DEPENDENT:
+        # Not measured because the (suppressed) carrier could not be placed: the fix is an
+        # option, not the transmitter.
+        return replace(v, advice="give --carrier HZ (offset from the capture centre, or absolute RF) to grade this figure")
     if not reason:
         return v
     return replace(v, status="warn", reason=reason, advice=advice, inconclusive=True, marginal=False)

@@ -21,8 +21,13 @@ Automatic classification (``--mode auto``), on the noise-subtracted spectrum ``s
    with its carrier at that centre; anything else is single sideband, which cannot be placed
    without ``--carrier`` or ``--tone`` (a :class:`~iqscope.errors.UsageError` says so).
 
-A two-tone SSB test signal is symmetric about its midpoint and is classified as DSB;
-``--mode two-tone`` says what it is.
+Two about equal strongest lines (within 3 dB) with third-order products on both sides
+and no line at their midpoint are a two-tone test (mode ``two-tone``, carrier not
+placed: ``--carrier`` grades the carrier figures); with a line at the midpoint they are
+DSB with a tone; with neither, DSB with ``mode_confidence="low"`` (a guess). An AM
+carrier on the capture centre is kept as the carrier, not dropped as the receiver's DC
+line, when it holds most of the power and has symmetric sidebands (:func:`_dc_is_carrier`).
+With ``--tone`` alone, two lines ``2 * tone`` apart and within 10 dB are DSB.
 """
 
 from __future__ import annotations
@@ -576,6 +581,13 @@ def _classify(
         if strongest is None:
             return info("none", None, "no test-tone line above the noise", True)
         f_line = strongest.frequency_hz
+        # A DSB signal with this tone has its two sideband lines 2 * tone apart, about
+        # equal (a test tone is not SSB when its mirror line is as strong as itself).
+        for other in (f_line + 2 * tone_hz, f_line - 2 * tone_hz):
+            q = line_power(spectrum, other, floor.psd, search_bins=2)
+            if q.detected and q.power >= 0.1 * strongest.power:
+                fm = 0.5 * (f_line + q.frequency_hz)
+                return info("dsb", fm, f"mean of the two sideband lines {2 * tone_hz:g} Hz apart (DSB with --tone)", True)
         cands: list[tuple[float, str, float]] = []
         for side, f0 in (("usb", f_line - tone_hz), ("lsb", f_line + tone_hz)):
             c = line_power(spectrum, f0, floor.psd, search_bins=2)
@@ -616,6 +628,16 @@ def _classify(
             "(offset from the capture centre, or absolute RF) or --tone HZ with --mode usb or --mode lsb"
         )
     frac = strongest.power / total if total > 0 else 1.0
+    pair = _equal_pair(spectrum, floor, peaks, h, prep.dc_lobe)
+    if pair is not None and not pair.carrier_line:
+        if pair.products:
+            return info(
+                "two-tone", None,
+                f"two-tone test: two equal lines at {pair.f1:.2f} and {pair.f2:.2f} Hz with odd-order products at "
+                f"{', '.join(f'{f:.0f}' for f in pair.products)} Hz; the suppressed carrier cannot be placed from "
+                "them: give --carrier to grade the carrier figures",
+                True,
+            )
     if frac >= _CARRIER_FRACTION:
         m = _am_or_cw(spectrum, s, strongest.frequency_hz, strongest.power, h, keyed_fraction)
         if m == "am":  # a carrier with symmetric sidebands about itself
@@ -629,14 +651,14 @@ def _classify(
             if score_d >= (_SYMMETRY_DSB if frac < _CARRIER_FRACTION else _SYMMETRY_UNBALANCED) and _centre_gap(
                 s, spectrum, fd, h
             ):
-                return info("dsb", fd, how_d, True)
+                return info("dsb", fd, how_d, True, _dsb_confidence(pair))
     if frac >= _CARRIER_FRACTION:
         m = _am_or_cw(spectrum, s, strongest.frequency_hz, strongest.power, h, keyed_fraction)
         return info(m, strongest.frequency_hz, "strongest line (the carrier)", True)
     fc, how_c = _dsb_centre(spectrum, s, peaks, h)
     score = _symmetry_about(s, spectrum, fc) if fc is not None else 0.0
     if fc is not None and score >= _SYMMETRY_DSB and _centre_gap(s, spectrum, fc, h):
-        return info("dsb", fc, how_c, True)
+        return info("dsb", fc, how_c, True, _dsb_confidence(pair))
     raise UsageError(
         "the signal looks like single sideband (not symmetric about any carrier): add --carrier HZ "
         "(offset from the capture centre, or absolute RF) or --tone HZ with --mode usb or --mode lsb"
@@ -935,3 +957,64 @@ def signal_warnings(sig: SignalInfo) -> tuple[str, ...]:
             "pass: give --mode (and --carrier) to grade them"
         )
     return tuple(out)
+
+
+@dataclass(frozen=True)
+class _Pair:
+    """Two about equal lines: a DSB signal with a tone or a two-tone test."""
+
+    f1: float
+    f2: float
+    carrier_line: bool
+    """A line stands at their midpoint (a DSB carrier, residual or not)."""
+    products: tuple[float, ...]
+    """Odd-order products detected at f1 - k d and f2 + k d (d = f2 - f1, k = 1, 2)."""
+
+
+#: Two lines within this ratio (3 dB) are "equal" test tones (two-tone tests set the
+#: tones equal; ITU-R SM.326 two-tone method, from memory).
+_EQUAL_TONES: Final = 10 ** (-3.0 / 10)
+
+
+def _equal_pair(
+    spectrum: Spectrum, floor: NoiseFloor, peaks: list[Peak], h: int, dc_lobe: npt.NDArray[np.bool_]
+) -> _Pair | None:
+    """The two strongest lines when they are about equal, with what stands about them.
+
+    Two equal lines f1 < f2 are either DSB with one tone (its carrier at the midpoint) or
+    a two-tone SSB test (its carrier off to one side, 300 Hz or more below the lower tone
+    on USB). A two-tone test through a real amplifier shows odd-order products at
+    ``2 f1 - f2``, ``2 f2 - f1`` (third order) and ``3 f1 - 2 f2``, ``3 f2 - 2 f1`` (fifth);
+    a line at the midpoint is a DSB carrier. A midpoint inside a receiver DC line's lobe
+    is counted as no carrier line (the DC line may be all of it).
+    """
+    if len(peaks) < 2:
+        return None
+    p, q = peaks[0], peaks[1]
+    if q.power < _EQUAL_TONES * p.power:
+        return None
+    f1, f2 = sorted((p.frequency_hz, q.frequency_hz))
+    d = f2 - f1
+    gap = (h + 0.5) * spectrum.bin_hz
+    if d <= 4 * gap:
+        return None
+    mid = 0.5 * (f1 + f2)
+    c = line_power(spectrum, mid, floor.psd, search_bins=2)
+    carrier_line = bool(c.detected) and not bool(dc_lobe[bin_index(spectrum, mid)])
+    tol = (h + 1) * spectrum.bin_hz
+    found: list[float] = []
+    for k in (1, 2):
+        for f in (f1 - k * d, f2 + k * d):
+            if any(abs(r.frequency_hz - f) <= tol for r in peaks[2:]):
+                found.append(f)
+    # Third-order products on both sides: a lone line on one side is not the pattern.
+    third = [f for f in found if abs(f - (f1 - d)) <= tol or abs(f - (f2 + d)) <= tol]
+    return _Pair(f1, f2, carrier_line, tuple(sorted(found)) if len(third) == 2 else ())
+
+
+def _dsb_confidence(pair: _Pair | None) -> str:
+    """Two bare equal lines with no carrier line between them and no products are as
+    likely a distortion-free two-tone test as DSB with a tone: a guess."""
+    if pair is not None and not pair.carrier_line and not pair.products:
+        return "low"
+    return "high"
