@@ -16,7 +16,15 @@ from collections.abc import Callable, Iterator
 from typing import Any
 
 from ..errors import EXIT_INTERRUPTED, CaptureError, UsageError
-from ._options import FULL_SCALE_HELP, MODE_CHOICES, add_full_scale_option, hz, positive_hz
+from ._options import (
+    FULL_SCALE_HELP,
+    MODE_CHOICES,
+    SWAP_IQ_HELP,
+    add_full_scale_option,
+    add_swap_iq_option,
+    hz,
+    positive_hz,
+)
 
 __all__ = ["register", "run_capture", "run_devices", "grade_argv"]
 
@@ -91,6 +99,7 @@ def register(subparsers: Any) -> None:
     g.add_argument("--report", metavar="FILE", help="passed to grade: write a report file")
     g.add_argument("--json", action="store_true", help="passed to grade: print the JSON result")
     add_full_scale_option(g, help="passed to grade: " + FULL_SCALE_HELP)
+    add_swap_iq_option(g, help="passed to grade: " + SWAP_IQ_HELP)
     p.set_defaults(func=run_capture)
 
     d = subparsers.add_parser(
@@ -117,6 +126,8 @@ def grade_argv(args: argparse.Namespace, path: str) -> list[str]:
                         ("--full-scale", getattr(args, "full_scale", None))):
         if value is not None:
             argv += [flag, str(value)]
+    if getattr(args, "swap_iq", False):
+        argv.append("--swap-iq")
     if args.json:
         argv.append("--json")
     return argv
@@ -175,7 +186,8 @@ def run_capture(args: argparse.Namespace) -> int:
     grading_flags = [f for f, v in (("--mode", args.mode), ("--limits", args.limits),
                                     ("--calibration", args.calibration),
                                     ("--report", args.report), ("--json", args.json or None),
-                                    ("--full-scale", args.full_scale))
+                                    ("--full-scale", args.full_scale),
+                                    ("--swap-iq", args.swap_iq or None))
                      if v is not None]
     if grading_flags and not args.grade:
         raise UsageError(f"{', '.join(grading_flags)} only apply with --grade")

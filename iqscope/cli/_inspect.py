@@ -63,6 +63,7 @@ def inspect_data(rec: Recording, levels: Levels) -> dict[str, Any]:
         "annotations": len(rec.annotations),
         "warnings": list(rec.warnings),
         "full_scale": rec.full_scale,
+        "swap_iq": rec.swap_iq,
     }
 
 

@@ -46,8 +46,10 @@ __all__ = [
     "positive_number",
     "add_input_options",
     "add_full_scale_option",
+    "add_swap_iq_option",
     "open_input",
     "FULL_SCALE_HELP",
+    "SWAP_IQ_HELP",
     "check_format",
     "check_plot_folder",
     "make_plot_folder",
@@ -152,6 +154,7 @@ def add_input_options(
     if center:
         group.add_argument("--center", metavar="HZ", type=hz, help=f"centre frequency, Hz (overrides {what})")
     add_full_scale_option(group)
+    add_swap_iq_option(group)
     group.add_argument(
         "--accept-truncated",
         action="store_true",
@@ -164,6 +167,18 @@ def add_input_options(
 def add_full_scale_option(group: argparse.ArgumentParser | argparse._ArgumentGroup, help: str = FULL_SCALE_HELP) -> None:
     """Add ``--full-scale VALUE`` (the one definition every command shares)."""
     group.add_argument("--full-scale", metavar="VALUE", type=positive_number, dest="full_scale", help=help)
+
+
+#: Help text of ``--swap-iq`` (every reading command, and ``capture --grade``).
+SWAP_IQ_HELP: Final = (
+    "swap I and Q on reading (a receiver, often a sound card, that delivers them the other way "
+    "round mirrors the spectrum: upper sideband reads as lower); recorded in the output"
+)
+
+
+def add_swap_iq_option(group: argparse.ArgumentParser | argparse._ArgumentGroup, help: str = SWAP_IQ_HELP) -> None:
+    """Add ``--swap-iq`` (the one definition every command shares)."""
+    group.add_argument("--swap-iq", action="store_true", dest="swap_iq", help=help)
 
 
 def open_input(
@@ -186,6 +201,8 @@ def open_input(
     full_scale = getattr(args, "full_scale", None)
     if full_scale is not None:
         rec.set_full_scale(full_scale)
+    if getattr(args, "swap_iq", False):
+        rec.set_swap_iq(True)
     return rec
 
 

@@ -26,6 +26,9 @@ ARTEFACT_ADVICE: Final[Mapping[str, str]] = {
     "the transmitter: retune, or treat the opposite-sideband figure as a receiver limit",
     "clipping": "the receiver's ADC clipped: add attenuation or reduce the receiver gain; "
     "clipping makes distortion that is not the transmitter's",
+    "sideband_reversed": "the power sits on the other side of the carrier from the mode given: "
+    "wrong --mode, or I and Q swapped (a sound card or driver delivering them the other way round): "
+    "grade with the other --mode, or add --swap-iq",
     "other": "check the receiver chain before blaming the transmitter",
 }
 

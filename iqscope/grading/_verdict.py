@@ -35,6 +35,7 @@ from typing import Any, Final, Literal
 from ..errors import EXIT_FAIL, EXIT_OK, EXIT_WARN
 from ..measure._analysis import Analysis
 from ..measure._result import Measurement
+from ..measure.sidebands import MIRROR_NOTE
 from ._advice import ARTEFACT_ADVICE, INCONCLUSIVE_ADVICE, advice_for
 from ._limits import Bound, LimitsProfile, Rule, default_profile
 
@@ -89,6 +90,24 @@ CARRIER_DEPENDENT: Final = frozenset({
 #: Figures whose meaning depends on the mode: on a low-confidence automatic mode
 #: (``signal.mode_confidence == "low"``) their verdicts are inconclusive, never a pass.
 MODE_DEPENDENT: Final = frozenset(APPLIES_TO) | {"frequency_offset_hz"}
+
+#: Figures that need the sideband sense: not graded when the power sits on the other side
+#: of the carrier from the mode (artefact ``sideband_reversed``).
+SIDEBAND_DEPENDENT: Final = frozenset({
+    "carrier_suppression_db",
+    "carrier_below_pep_db",
+    "opposite_sideband_suppression_db",
+    "sideband_balance_db",
+})
+
+#: Figures of the emission band: not graded either when the signal sits at the mirror of
+#: the carrier about the capture centre (I and Q swapped, the carrier given as RF).
+BAND_DEPENDENT: Final = frozenset({
+    "occupied_bandwidth_hz",
+    "bandwidth_26db_hz",
+    "necessary_bandwidth_hz",
+    "worst_spur_dbc",
+})
 
 #: Measurements a limits profile may hold that one recording cannot give; :func:`grade`
 #: lists their rules under "not graded" with the command that grades them.
@@ -258,10 +277,17 @@ def grade(analysis: Analysis, limits: LimitsProfile | None = None) -> GradeResul
     verdicts: list[Verdict] = []
     skipped: list[str] = []
     # Measurements in analysis order first, then rules whose measurement is absent.
+    reversed_ = next((a for a in analysis.artefacts if a.kind == "sideband_reversed"), None)
     for name, m in analysis.measurements.items():
         rule = by_name.get(name)
-        if rule is not None:
-            verdicts.append(_doubt(_judge(name, m, rule, mode), analysis))
+        if rule is None:
+            continue
+        if reversed_ is not None and (name in SIDEBAND_DEPENDENT or (
+                name in BAND_DEPENDENT and reversed_.note.startswith(MIRROR_NOTE))):
+            skipped.append(f"{name}: not graded: the power sits on the other side of the carrier from "
+                           f"--mode {mode} (wrong --mode, or I and Q swapped)")
+            continue
+        verdicts.append(_doubt(_judge(name, m, rule, mode), analysis))
     for rule in rules:
         name = rule.measurement
         if name in analysis.measurements:
@@ -275,6 +301,8 @@ def grade(analysis: Analysis, limits: LimitsProfile | None = None) -> GradeResul
             continue
         verdicts.append(_absent(rule, mode, analysis.measurements))
     overall: Status = worst(v.status for v in verdicts) if verdicts else "warn"
+    if reversed_ is not None:
+        overall = worst((overall, "warn"))
     if not verdicts:
         skipped.append(f"nothing in the {profile.name!r} limits applies to this {mode} recording")
     return GradeResult(

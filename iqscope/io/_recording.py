@@ -121,12 +121,14 @@ class Recording:
         full_scale: the full scale stated with :meth:`set_full_scale` (``--full-scale``), in
             the file's own units (codes for integers, the stored value for floats); None
             when the datatype's own full scale is used (``2**(bits-1)`` codes, 1.0 for floats).
+        swap_iq: True when I and Q are swapped on reading (:meth:`set_swap_iq`, ``--swap-iq``).
     """
 
     _warnings: tuple[str, ...] = ()
     _scale: float = 1.0
     _max_component: float = 0.0
     full_scale: float | None = None
+    swap_iq: bool = False
     _nonfinite: int = 0
     _nonfinite_until: int = 0
 
@@ -208,6 +210,12 @@ class Recording:
             f"dBFS levels are relative to 1.0, not to the receiver's full scale (give {say} to state it); "
             "dB, dBc and Hz figures are unaffected"
         )
+
+    def set_swap_iq(self, on: bool = True) -> None:
+        """Swap I and Q on reading (``--swap-iq``): ``Q + jI``, which is ``j conj(x)``, the
+        spectrum mirrored about the capture centre. For receivers (often sound-card ones)
+        that deliver the two channels the other way round."""
+        self.swap_iq = bool(on)
 
     def set_full_scale(self, value: float | None) -> None:
         """State the full scale of the samples (``--full-scale VALUE``), in the file's units.
@@ -336,6 +344,10 @@ class Recording:
                 self._nonfinite_until = max(self._nonfinite_until, stop)
         if self._scale != 1.0:
             out = (out * np.float32(self._scale)).astype(np.complex64, copy=False)
+        if self.swap_iq:
+            # Q + jI = j * conj(I + jQ): the spectrum mirrored about the capture centre.
+            pair = np.ascontiguousarray(out, dtype=np.complex64).view(np.float32).reshape(-1, 2)
+            out = np.ascontiguousarray(pair[:, ::-1]).view(np.complex64).ravel()
         return out
 
     def chunks(

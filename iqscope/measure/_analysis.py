@@ -32,6 +32,8 @@ class RecordingInfo:
     center_frequency_hz: float | None
     n_samples: int
     datatype: str = ""
+    swap_iq: bool = False
+    """True when I and Q were swapped on reading (``--swap-iq``)."""
 
     @property
     def duration_s(self) -> float:
@@ -46,6 +48,7 @@ class RecordingInfo:
             "center_frequency_hz": finite_or_none(self.center_frequency_hz),
             "n_samples": self.n_samples,
             "duration_s": self.duration_s,
+            "swap_iq": self.swap_iq,
         }
 
 

@@ -568,6 +568,7 @@ def analyse(
         center_frequency_hz=recording.center_frequency_hz,
         n_samples=n,
         datatype=recording.datatype,
+        swap_iq=bool(getattr(recording, "swap_iq", False)),
     )
     return Analysis(
         recording=info,

@@ -19,10 +19,91 @@ from collections.abc import Mapping
 
 from ..dsp._lines import line_power
 from ._context import AnalysisContext, FigureSet
-from ._result import Measurement, failed
+from ._result import Artefact, Measurement, failed
 from .locate import Layout, db_ratio, layout_of
 
-__all__ = ["sideband_figures"]
+__all__ = ["sideband_figures", "sideband_reversal", "REVERSED_DB", "AUDIO_SPAN_HZ", "MIRROR_NOTE"]
+
+#: How the note of a reversal found at the mirror of the carrier (I and Q swapped, the
+#: carrier given as RF) begins: the emission is not where the carrier says, so grading
+#: leaves the band and spur figures ungraded too.
+MIRROR_NOTE = "nothing stands beside the carrier"
+
+#: The side opposite the mode's this much (dB) above the wanted side means the sense is
+#: reversed: no SSB filter or phasing exciter passes more of its unwanted sideband than
+#: of the wanted one, so 3 dB (twice the power) leaves any real transmitter out.
+REVERSED_DB = 3.0
+#: Audio span compared on each side of the carrier, Hz (SSB speech audio ends near
+#: 3 kHz, test tones below 3 kHz; common practice), with room for a wide filter.
+AUDIO_SPAN_HZ = 5000.0
+
+
+def _line_score(ctx: AnalysisContext, lay: Layout, carrier: float, tone_line: float) -> float:
+    """Residual carrier at ``carrier`` or mirror line of ``tone_line`` about it, in noise sigmas
+    (0 unless 5 sigmas up): the same test auto mode uses to pick a side from ``--tone``."""
+    spec = ctx.spectrum
+    best = 0.0
+    for f in (carrier, 2 * carrier - tone_line):
+        lp = line_power(spec, f, lay.floor.psd, search_bins=2)
+        if lp.noise_sigma > 0 and lp.power > 5 * lp.noise_sigma:
+            best = max(best, lp.power / lp.noise_sigma)
+    return best
+
+
+def sideband_reversal(ctx: AnalysisContext, lay: Layout) -> str:
+    """Why the signal's power sits on the other side of the carrier from ``--mode``; "" if it does not.
+
+    Only for a mode the user named (auto mode picks the side from the signal). With
+    ``--tone`` alone the carrier was placed on the mode's side of the tone line; the
+    sense is reversed when the residual carrier or mirror line stands on the other side
+    (5 noise sigmas up, 10 times the score of the mode's side). Otherwise the
+    noise-subtracted power within :data:`AUDIO_SPAN_HZ` on the opposite side of the
+    carrier exceeds the wanted side's by :data:`REVERSED_DB`; or, with neither side
+    holding power, the mirror of the wanted band about the capture centre holds it
+    (I and Q swapped with the carrier given as RF).
+    """
+    mode = ctx.signal.mode
+    if mode not in ("usb", "lsb") or lay.f0 is None or not lay.has_signal or ctx.signal.mode_detected:
+        return ""
+    f0 = float(lay.f0)
+    sgn = 1.0 if mode == "usb" else -1.0
+    side = "upper" if mode == "usb" else "lower"
+    other = "lower" if mode == "usb" else "upper"
+    why = "wrong --mode, or I and Q swapped"
+    tone = ctx.request.tone_hz
+    spec = ctx.spectrum
+    if tone is not None and ctx.request.carrier_hz is None:
+        f_line = f0 + sgn * tone
+        alt = f_line + sgn * tone
+        mine, theirs = _line_score(ctx, lay, f0, f_line), _line_score(ctx, lay, alt, f_line)
+        if theirs > 0 and theirs >= 10.0 * mine:
+            return (
+                f"the test-tone line at {f_line:.2f} Hz has its residual carrier or mirror line on the {other} "
+                f"side ({alt:.2f} Hz), not the {side}: the signal is {'lsb' if mode == 'usb' else 'usb'}, not "
+                f"{mode} ({why})"
+            )
+        return ""
+    gap = lay.gap_hz
+    up = lay.band(spec, f0 + gap, f0 + AUDIO_SPAN_HZ, symmetric=True)
+    dn = lay.band(spec, f0 - AUDIO_SPAN_HZ, f0 - gap, symmetric=True)
+    want, unw = (up, dn) if mode == "usb" else (dn, up)
+    ratio = 10 ** (REVERSED_DB / 10)
+    if unw.detected and unw.power > ratio * max(want.power, 0.0):
+        return (
+            f"the power sits on the {other} side of the carrier ({f0:.2f} Hz), not the {side}: "
+            f"the signal is {'lsb' if mode == 'usb' else 'usb'} about it, not {mode} ({why})"
+        )
+    if not want.detected and not unw.detected and abs(f0) > AUDIO_SPAN_HZ:
+        # The mirror of the wanted band about the capture centre: what swapped I and Q give.
+        mlo, mhi = sorted((-(f0 + sgn * gap), -(f0 + sgn * AUDIO_SPAN_HZ)))
+        mir = lay.band(spec, mlo, mhi)
+        if mir.detected and mir.power > 0:
+            return (
+                f"{MIRROR_NOTE} at {f0:.2f} Hz, but the mirror of its {side} sideband about "
+                f"the capture centre ({mlo:.0f}..{mhi:.0f} Hz) holds the signal: I and Q look swapped "
+                f"({why}; try --swap-iq)"
+            )
+    return ""
 
 
 def _image_overlap_note(lay: Layout, lo: float, hi: float) -> str:
@@ -48,6 +129,13 @@ def sideband_figures(ctx: AnalysisContext) -> FigureSet:
         name = "opposite_sideband_suppression_db"
         if lay.f0 is None:
             out.measurements[name] = failed("dB", f"carrier not placed: {ctx.signal.how}")
+            return out
+        reversal = sideband_reversal(ctx, lay)
+        if reversal:
+            out.artefacts.append(Artefact(kind="sideband_reversed", offset_hz=float(lay.f0), level_dbc=None,
+                                          note=reversal + "; no sideband figure is graded"))
+            out.warnings.append(reversal)
+            out.measurements[name] = failed("dB", f"not measured: {reversal}")
             return out
         f0 = lay.f0
         sgn = 1.0 if mode == "usb" else -1.0

@@ -72,6 +72,7 @@ def drift_document(result: DriftResult, recording: Recording, *, include_track: 
             "center_frequency_hz": _finite(recording.center_frequency_hz),
             "n_samples": recording.n_samples,
             "duration_s": recording.duration_s,
+            "swap_iq": bool(getattr(recording, "swap_iq", False)),
         },
         "line": {
             "kind": tr.plan.kind,
