@@ -139,7 +139,26 @@ def test_several_files_worst_verdict(capsys: pytest.CaptureFixture[str], recordi
     assert [r["overall"] for r in doc["results"]] == ["pass", "fail"] and doc["overall"] == "fail"
     assert status == EXIT_FAIL
     status, out, _ = run(capsys, "grade", str(recordings["good"]), str(recordings["bad"]), "--quiet")
-    assert out.splitlines() == [f"{recordings['good']}: + PASS", f"{recordings['bad']}: x FAIL"]
+    # the marks of the verdict table on the same output (here UTF-8: the symbols)
+    from iqscope.report._theme import verdict_label
+
+    assert out.splitlines() == [
+        f"{recordings['good']}: {verdict_label('pass')}",
+        f"{recordings['bad']}: {verdict_label('fail')}",
+    ]
+
+
+def test_quiet_uses_the_marks_of_the_table(capsys: pytest.CaptureFixture[str], recordings: dict[str, Path]) -> None:
+    """One verdict, one mark: ``--quiet`` prints the overall mark the full report prints."""
+    for name in ("good", "bad"):
+        _, full, _ = run(capsys, "grade", str(recordings[name]))
+        overall = next(line for line in full.splitlines() if line.startswith("overall"))
+        mark = overall.split(None, 1)[1].strip()
+        _, quiet, _ = run(capsys, "grade", str(recordings[name]), "--quiet")
+        assert quiet.strip() == f"{recordings[name]}: {mark}"
+        for line in full.splitlines():  # the table's rows carry the same marks
+            if line.rstrip().endswith(("PASS", "FAIL", "WARN")) and not line.startswith("overall"):
+                assert line.rstrip().endswith(("\u2714 PASS", "\u2718 FAIL", "! WARN", "! WARN?")), line
 
 
 def test_report_plot_and_annotate(capsys: pytest.CaptureFixture[str], recordings: dict[str, Path], tmp_path: Path) -> None:

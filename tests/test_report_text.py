@@ -48,7 +48,7 @@ lines outside the necessary band, levels re the mean power; spurious domain
 beyond ±15.00 kHz of the emission centre (250 % of the 6.00 kHz necessary
 bandwidth, SM.1539), 14.58 kHz of it recorded
 
-line            re carrier             level   domain        what
+line            re carrier     re mean power   domain        what
 ────────────────────────────────────────────────────────────────────────
 7.100000 MHz    -3.210 kHz         -52.0 dBc   out-of-band   receiver DC
 7.119210 MHz   +16.000 kHz   -61.3 ± 0.4 dBc   spurious

@@ -130,6 +130,8 @@ def grade_argv(args: argparse.Namespace, path: str) -> list[str]:
         argv.append("--swap-iq")
     if args.json:
         argv.append("--json")
+    if getattr(args, "force", False) and args.report is not None:
+        argv.append("--force")  # --force covers every output of the command, the report too
     return argv
 
 
@@ -218,6 +220,13 @@ def run_capture(args: argparse.Namespace) -> int:
     from ..io import check_free_space
 
     check_free_space(args.output, total * (4 if args.stream_format == "cs16" else 8))  # before tuning
+    from ..io._atomic import check_can_write
+    from ..io._sigmf import sigmf_paths
+
+    for target in sigmf_paths(args.output):  # before the device is opened
+        check_can_write(target, force=args.force)
+    if args.grade and args.report:  # the report is written after the capture: check it first
+        check_can_write(args.report, force=args.force)
     with _progress(total, enabled=sys.stderr.isatty()) as update:
         result = capture_to_sigmf(settings, args.output, force=args.force, progress=update)
     for w in result.warnings:

@@ -229,8 +229,10 @@ def _print_results(args: argparse.Namespace, results: list[Any], failures: list[
         sys.stdout.write(dumps(document) + "\n")
         return
     if args.quiet:
+        # the marks of the verdict table on this terminal (ASCII only where it cannot show more)
+        ascii_only = is_ascii(out)
         for r in results:
-            sys.stdout.write(f"{r.analysis.recording.path}: {verdict_label(r.overall, ascii_only=True)}\n")
+            sys.stdout.write(f"{r.analysis.recording.path}: {verdict_label(r.overall, ascii_only=ascii_only)}\n")
         return
     for i, r in enumerate(results):
         if i:

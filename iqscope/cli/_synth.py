@@ -270,6 +270,22 @@ def build_spec(args: argparse.Namespace) -> SignalSpec | AudioSpec:
     )
 
 
+def _check_outputs(out: Path, spec: SignalSpec | AudioSpec, args: argparse.Namespace) -> None:
+    """Refuse an existing output (without --force) before a single sample is made."""
+    from ..io._atomic import check_can_write
+    from ..io._common import sidecar_path
+    from ..io._sigmf import sigmf_paths
+
+    if isinstance(spec, AudioSpec):
+        targets = [out]
+    elif (args.format or ("wav" if out.suffix.lower() == ".wav" else "sigmf")) == "wav":
+        targets = [out, sidecar_path(out)]
+    else:
+        targets = list(sigmf_paths(out))
+    for target in targets:
+        check_can_write(target, force=args.force)
+
+
 def _check_size(out: Path, spec: SignalSpec | AudioSpec, args: argparse.Namespace) -> None:
     """Refuse before writing when the file cannot fit: WAV's 4 GiB or the free disk space."""
     from ..io import check_free_space, parse_datatype
@@ -297,6 +313,7 @@ def run(args: argparse.Namespace) -> int:
     except ValueError as exc:
         raise UsageError(f"synth {args.kind}: {exc}") from None
     out = Path(args.output)
+    _check_outputs(out, spec, args)
     _check_size(out, spec, args)
     try:
         if isinstance(spec, AudioSpec):

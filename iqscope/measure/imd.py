@@ -69,6 +69,11 @@ MAX_ORDER: Final = 7
 # --------------------------------------------------------------------------------------
 # Relations (pure)
 # --------------------------------------------------------------------------------------
+#: What ``imdN_dbc`` is relative to (``details.reference``): one tone, not the total power.
+IMD_DBC_REFERENCE: Final = "mean power of one tone"
+#: What ``imdN_db_pep`` is relative to (``details.reference``).
+IMD_PEP_REFERENCE: Final = "peak envelope power"
+
 def pep_from_tones(p1: float, p2: float) -> float:
     """PEP of two tones of mean powers ``p1`` and ``p2`` (same units): (sqrt p1 + sqrt p2)².
 
@@ -382,6 +387,8 @@ def two_tone_figures(ctx: AnalysisContext) -> FigureSet:
     pep_sigma_db = (
         math.nan if pep_env is None else 20.0 * math.log10(1.0 + 3.0 * noise_amp / math.sqrt(pep_env))
     )
+    # The PEP each product's "re PEP" level is taken against (the same as imdN_db_pep's).
+    pep_ref = pep_env if pep_env is not None else pep_tones
     for order in range(3, MAX_ORDER + 1, 2):
         worst = res.worst(order)
         if worst is None:
@@ -390,6 +397,7 @@ def two_tone_figures(ctx: AnalysisContext) -> FigureSet:
             p.side: {
                 "freq_hz": p.line.frequency_hz,
                 "level_dbc": p.level_dbc,
+                "level_db_pep": 10.0 * math.log10(max(p.line.level, 1e-300) / pep_ref),
                 "detected": p.line.detected,
                 "collides_with": list(p.collides_with),
             }
@@ -411,7 +419,11 @@ def two_tone_figures(ctx: AnalysisContext) -> FigureSet:
             bound="upper" if limited else None,
             note=f"worst IMD{order} product ({worst.side}, {worst.line.frequency_hz:.1f} Hz) re one tone's mean power, "
             f"{how}{caveat}",
-            details={"products": sides, "reference_tone_dbfs": _db(t.mean_tone_power)},
+            details={
+                "products": sides,
+                "reference_tone_dbfs": _db(t.mean_tone_power),
+                "reference": IMD_DBC_REFERENCE,
+            },
         )
         p_abs = max(worst.line.level, 1e-300)
         db_pep_tones = 10.0 * math.log10(p_abs / pep_tones)
@@ -441,6 +453,7 @@ def two_tone_figures(ctx: AnalysisContext) -> FigureSet:
                 "pep_envelope_dbfs": None if pep_env is None else _db(pep_env),
                 "pep_tones_dbfs": _db(pep_tones),
                 "pep_envelope_minus_tones_db": pep_diff_db,
+                "reference": IMD_PEP_REFERENCE,
             },
         )
         for p in res.products:

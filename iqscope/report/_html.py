@@ -181,7 +181,7 @@ def _spurs(result: GradeResult) -> str:
     rows, left = spur_rows(result)
     if not rows:
         return ""
-    head = "<tr><th>line</th><th>re carrier</th><th>level</th><th>domain</th><th>what</th></tr>"
+    head = "<tr><th>line</th><th>re carrier</th><th>level re mean power</th><th>domain</th><th>what</th></tr>"
     body = []
     for where, rel, level, domain, what in rows:
         cls = ' class="receiver"' if what.startswith("receiver") else ""

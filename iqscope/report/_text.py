@@ -320,6 +320,22 @@ def _is_point_marker(name: str) -> bool:
     return name in _MARKER_WORDS or (name.startswith("imd") and "_" in name)
 
 
+def _imd_figure_text(measurements: Mapping[str, Measurement], name: str) -> str:
+    """For an IMD product's marker (``imd3_lower``): the figure's own level of that product,
+    with its reference, so that the spur table (re the mean power) and the verdict table
+    (re one tone) never show one product as two unexplained "dBc" numbers."""
+    if not (name.startswith("imd") and "_" in name):
+        return ""
+    order, side = name.split("_", 1)
+    m = measurements.get(f"{order}_dbc")
+    products = None if m is None else m.details.get("products")
+    product = products.get(side) if isinstance(products, Mapping) else None
+    level = _number(product.get("level_dbc")) if isinstance(product, Mapping) else None
+    if level is None:
+        return ""
+    return f" ({_signed_zero(level)} dBc re one tone)"
+
+
 def _marker_word(name: str) -> str:
     if name in _MARKER_WORDS:
         return _MARKER_WORDS[name]
@@ -375,7 +391,11 @@ def spur_rows(result: GradeResult, *, ascii_only: bool = False) -> tuple[list[tu
         if isinstance(artefact, str) and artefact:
             what = _ARTEFACT_WORDS.get(artefact, f"receiver {artefact}")
         else:
-            near = [_marker_word(k) for k, f in markers.items() if abs(f - offset) <= tol]
+            near = [
+                _marker_word(k) + _imd_figure_text(a.measurements, k)
+                for k, f in markers.items()
+                if abs(f - offset) <= tol
+            ]
             if not near and carrier is not None:
                 # The mirror of a wanted line about the carrier: the opposite sideband.
                 near = [
@@ -416,7 +436,7 @@ def render_spur_table(result: GradeResult, *, ascii_only: bool = False) -> Rende
     table = Table(box=box.ASCII if ascii_only else box.SIMPLE_HEAD, pad_edge=False, expand=False, show_edge=False)
     table.add_column("line", no_wrap=True)
     table.add_column("re carrier", justify="right", no_wrap=True)
-    table.add_column("level", justify="right", no_wrap=True)
+    table.add_column("re mean power", justify="right", no_wrap=True)
     table.add_column("domain", no_wrap=True)
     table.add_column("what")
     for where, rel, level, domain, what in rows:
