@@ -259,9 +259,9 @@ def test_calibrated_analysis_within_0p1_db(rng: np.random.Generator) -> None:
     within 0.1 dB. Reference: -20 dBFS line fed at -50 dBm with 40 dB of chain not in its
     path -> offset +10 dB. Transmitter: two equal tones of -16 dBFS each -> each tone
     -6 dBm, mean -2.99 dBm, PEP +0.02 dBm (Krauss et al. 1980 p. 509)."""
-    pipeline = pytest.importorskip("iqscope.measure.pipeline", reason="pipeline not built yet")
-    if power_figures not in getattr(pipeline, "PROVIDERS", ()):
-        pytest.skip("power_figures is not registered in the pipeline yet")
+    from iqscope.measure import pipeline
+
+    assert power_figures in pipeline.PROVIDERS
     cal = make_calibration(reference(rng), -50.0, 40.0)
     n = 96_000
     # noise -110 dBFS/Hz (-63 dBFS in 48 kHz): it lifts the largest |x|^2 by at most
@@ -329,7 +329,6 @@ class TestCalibrateCommand:
         """Issue 7 acceptance through the commands: the calibrated grade's mean power and
         PEP agree with the synthesized truth within 0.1 dB (two equal tones of -16 dBFS,
         offset +10 dB: each tone -6 dBm, mean 2x, PEP 4x; Krauss et al. 1980 p. 509)."""
-        pytest.importorskip("iqscope.measure.pipeline", reason="pipeline not built yet")
         from iqscope.cli import main
         from iqscope.io import write_sigmf
 

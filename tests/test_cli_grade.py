@@ -17,7 +17,7 @@ import pytest
 from iqscope.cli import main
 from iqscope.errors import EXIT_FAIL, EXIT_INPUT, EXIT_OK, EXIT_USAGE, EXIT_WARN
 
-pipeline = pytest.importorskip("iqscope.measure.pipeline", reason="the measurement pipeline is not built yet")
+import iqscope.measure.pipeline  # noqa: F401  (a broken pipeline import fails here, never skips)
 
 
 @pytest.fixture(scope="module")

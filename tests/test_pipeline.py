@@ -299,7 +299,6 @@ def test_resolution_bounds() -> None:
 DEMOS = __import__("pathlib").Path(__file__).resolve().parent.parent / "recordings"
 
 
-@pytest.mark.skipif(not (DEMOS / "demos.json").exists(), reason="demo recordings not present")
 def test_demo_recordings_against_their_truth() -> None:
     """The demo recordings' figures against the generator's analytic truth (recordings/demos.json)."""
     from iqscope.io import open_recording
@@ -315,8 +314,7 @@ def test_demo_recordings_against_their_truth() -> None:
     }
     for name, (req, figs) in cases.items():
         meta = DEMOS / truth[name]["open"]
-        if not meta.exists():
-            continue
+        assert meta.exists(), f"demo recording {meta} is missing (python recordings/make_demos.py)"
         with open_recording(meta) as rec:
             an = analyse(rec, req, providers=PROVIDERS[:6])
         for key, tol in figs.items():

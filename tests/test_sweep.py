@@ -112,15 +112,6 @@ class TestCubicSweep:
         assert r.imd3_crossing.note.startswith("no IMD3")
 
 
-def _pipeline_available() -> bool:
-    try:
-        import iqscope.measure.pipeline  # noqa: F401
-    except ModuleNotFoundError:
-        return False
-    return True
-
-
-@pytest.mark.skipif(not _pipeline_available(), reason="iqscope.measure.pipeline not built yet")
 class TestSweepCommand:
     def test_two_tone_sweep_from_metadata(self, tmp_path: Path, capsys: pytest.CaptureFixture[str]) -> None:
         """Five two-tone recordings through the cubic, drive stored in the SigMF metadata:

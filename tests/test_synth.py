@@ -594,7 +594,7 @@ def test_audio_ramp_and_wav(tmp_path: Path) -> None:
 def test_sigmf_file_carries_truth_and_validates(tmp_path: Path) -> None:
     """The SigMF file we write passes the sigmf package's validator (external reference)
     and holds the spec and truth; ci16 samples equal the 16-bit ADC output exactly."""
-    sigmf = pytest.importorskip("sigmf")
+    import sigmf
     spec = SignalSpec(Dsb(Tone(1000.0), carrier_leak_dbc=-28.0), sample_rate_hz=FS,
                       duration_s=0.5, center_frequency_hz=7.1e6, noise_dbfs_per_hz=-110.0,
                       receiver=Receiver(adc_bits=16), seed=2)
@@ -736,7 +736,7 @@ def test_cli_synth_writes_files_and_reports(tmp_path: Path, capsys: pytest.Captu
     doc = json.loads(capsys.readouterr().out)
     assert doc["truth"]["imd3_dbc"] == pytest.approx(-30.0, abs=1e-9)
     spec = spec_from_dict(doc["spec"])
-    sigmf = pytest.importorskip("sigmf")
+    import sigmf
     samples = sigmf.fromfile(str(out) + ".sigmf-meta").read_samples()
     assert np.array_equal(samples.astype(np.complex64), synthesize(spec))
     # refuses to overwrite (exit 5), bad values are usage errors (exit 4)
