@@ -126,3 +126,14 @@ def test_two_bare_lines_are_a_low_confidence_guess(rng: np.random.Generator) -> 
     # With --mode the same recording is graded.
     g = _grade(_rx(rng, x), mode="dsb")
     assert g["signal"]["mode_confidence"] == "given"
+
+
+def test_two_tone_with_tilt_and_receiver_image(rng: np.random.Generator) -> None:
+    """Tones 5 dB apart (audio tilt) and a receiver I/Q image 40 dB down: still two-tone."""
+    f0, a = 4000.0, 0.2
+    x = _tone(f0 + 700, a) + _tone(f0 + 1900, a * 10 ** (-5 / 20)) + _tone(f0 - 500, 0.006) + _tone(f0 + 3100, 0.006)
+    x = x + 0.01 * np.conj(x)  # image-rejection ratio 40 dB (gain/phase imbalance, common practice)
+    j = _grade(_rx(rng, x))
+    assert j["signal"]["mode"] == "two-tone"
+    assert j["measurements"]["imd3_dbc"]["value"] is not None
+    assert j["overall"] != "pass"

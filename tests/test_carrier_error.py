@@ -95,3 +95,32 @@ def test_ssb_tone_and_carrier_disagree(rng: np.random.Generator) -> None:
     # Given right, the same signal grades its carrier figures.
     ok = _run(x, mode="usb", carrier_hz=F0, tone_hz=1000.0)
     assert ok["signal"]["carrier_error_hz"] is None
+
+
+def test_ssb_wrong_tone_alone(rng: np.random.Generator) -> None:
+    """USB, 1 kHz tone, residual carrier 45 dB down, graded --mode usb --tone 1500: the
+    residual carrier line at f0 shows the carrier is 500 Hz above the one --tone implies."""
+    x = _rx(rng, _tone(F0 + 1000, 0.3) + _tone(F0, 0.3 * 10 ** (-45 / 20)))
+    j = _run(x, mode="usb", tone_hz=1500.0)
+    assert j["signal"]["carrier_error_hz"] == pytest.approx(500.0, abs=ERR_TOL_HZ)
+    for v in j["verdicts"]:
+        if v["measurement"] in ("carrier_suppression_db", "carrier_below_pep_db", "opposite_sideband_suppression_db"):
+            assert v["status"] == "warn" and v["inconclusive"], v
+    assert _run(x, mode="usb", tone_hz=1000.0)["signal"]["carrier_error_hz"] is None
+
+
+def test_dsb_speech_carrier_off(rng: np.random.Generator) -> None:
+    """DSB of band-limited noise (300-2700 Hz, a speech stand-in, common practice): its
+    centre of symmetry is the carrier (DSB spectra are mirror images about it)."""
+    from scipy import signal as ss
+
+    b, a = ss.butter(4, [300 / (FS / 2), 2700 / (FS / 2)], "band")
+    audio = ss.lfilter(b, a, rng.standard_normal(N))
+    audio *= 0.1 / np.std(audio)
+    x = _rx(rng, audio * np.exp(2j * np.pi * 4000.0 * T))
+    j = _run(x, mode="dsb", carrier_hz=5000.0)
+    # The centre of a continuous spectrum is good to about bin / sqrt(12) = 1.8 Hz (carrier.py);
+    # 3 sigma = 5.4 Hz, rounded up to 6 Hz.
+    assert j["signal"]["carrier_error_hz"] == pytest.approx(-1000.0, abs=6.0)
+    v = next(v for v in j["verdicts"] if v["measurement"] == "carrier_suppression_db")
+    assert v["status"] == "warn" and v["inconclusive"]

@@ -907,7 +907,9 @@ def _check_carrier(
     line); DSB the centre of symmetry of the sidebands (with a tone, the mean of the two
     sideband lines); SSB with ``--tone`` and ``--carrier`` the test-tone line minus the tone.
     """
-    if given is None or sig.carrier_offset_hz is None or not prep.usable or not prep.peaks:
+    if sig.carrier_offset_hz is None or not prep.usable or not prep.peaks:
+        return sig
+    if given is None and not (sig.mode in ("usb", "lsb") and tone_hz is not None and not sig.mode_detected):
         return sig
     f_user = float(sig.carrier_offset_hz)
     mode = sig.mode
@@ -922,6 +924,8 @@ def _check_carrier(
         fd, how_d = _dsb_centre(spectrum, s, prep.peaks, h)
         if fd is not None and _symmetry_about(s, spectrum, fd) >= _SYMMETRY_DSB:
             found, how = fd, how_d
+    elif mode in ("usb", "lsb") and tone_hz is not None and given is None:
+        found, how = _residual_carrier_elsewhere(spectrum, floor, prep, f_user, mode, tone_hz)
     elif mode in ("usb", "lsb") and tone_hz is not None:
         sgn = 1.0 if mode == "usb" else -1.0
         f_line = strongest.frequency_hz
@@ -972,8 +976,11 @@ class _Pair:
 
 
 #: Two lines within this ratio (3 dB) are "equal" test tones (two-tone tests set the
-#: tones equal; ITU-R SM.326 two-tone method, from memory).
+#: tones equal; ITU-R SM.326 two-tone method, from memory) ...
 _EQUAL_TONES: Final = 10 ** (-3.0 / 10)
+#: ... and within 6 dB when odd-order products stand on both sides (a two-tone test
+#: through an audio chain with a tilted response; the products are the pattern's proof).
+_EQUAL_TONES_WITH_PRODUCTS: Final = 10 ** (-6.0 / 10)
 
 
 def _equal_pair(
@@ -991,7 +998,7 @@ def _equal_pair(
     if len(peaks) < 2:
         return None
     p, q = peaks[0], peaks[1]
-    if q.power < _EQUAL_TONES * p.power:
+    if q.power < _EQUAL_TONES_WITH_PRODUCTS * p.power:
         return None
     f1, f2 = sorted((p.frequency_hz, q.frequency_hz))
     d = f2 - f1
@@ -1009,7 +1016,10 @@ def _equal_pair(
                 found.append(f)
     # Third-order products on both sides: a lone line on one side is not the pattern.
     third = [f for f in found if abs(f - (f1 - d)) <= tol or abs(f - (f2 + d)) <= tol]
-    return _Pair(f1, f2, carrier_line, tuple(sorted(found)) if len(third) == 2 else ())
+    products = tuple(sorted(found)) if len(third) == 2 else ()
+    if q.power < _EQUAL_TONES * p.power and not products:
+        return None
+    return _Pair(f1, f2, carrier_line, products)
 
 
 def _dsb_confidence(pair: _Pair | None) -> str:
@@ -1018,3 +1028,34 @@ def _dsb_confidence(pair: _Pair | None) -> str:
     if pair is not None and not pair.carrier_line and not pair.products:
         return "low"
     return "high"
+
+
+def _residual_carrier_elsewhere(
+    spectrum: Spectrum, floor: NoiseFloor, prep: _Prep, f0: float, mode: str, tone_hz: float
+) -> tuple[float | None, str]:
+    """SSB placed from ``--tone`` alone: a residual carrier line at another place.
+
+    The carrier sits ``--tone`` below (USB) or above (LSB) the tone line. When neither
+    a residual carrier nor the mirror line stands at that place, but another line does
+    on the carrier's side of the tone line within 5 kHz (not the receiver's DC line nor
+    the receiver image of the tone line), the tone given is not the tone sent: that line
+    is the residual carrier the signal shows.
+    """
+    sgn = 1.0 if mode == "usb" else -1.0
+    f_line = f0 + sgn * tone_hz
+    tol = (prep.h + 1) * spectrum.bin_hz
+    gap = (prep.h + 0.5) * spectrum.bin_hz
+    for f in (f0, 2 * f0 - f_line):
+        if line_power(spectrum, f, floor.psd, search_bins=2).detected:
+            return None, ""
+    for p in prep.peaks[1:]:
+        d = sgn * (f_line - p.frequency_hz)
+        if not gap < d <= 5000.0:
+            continue
+        if abs(p.frequency_hz + f_line) <= tol or abs(p.frequency_hz) <= tol:
+            continue  # the receiver's image of the tone line, or its DC line
+        return p.frequency_hz, (
+            f"a residual carrier line at {p.frequency_hz:.2f} Hz, {d:.0f} Hz {'below' if sgn > 0 else 'above'} the "
+            f"test-tone line at {f_line:.2f} Hz (--tone {tone_hz:g} Hz puts nothing there)"
+        )
+    return None, ""
