@@ -124,3 +124,13 @@ def test_dsb_speech_carrier_off(rng: np.random.Generator) -> None:
     assert j["signal"]["carrier_error_hz"] == pytest.approx(-1000.0, abs=6.0)
     v = next(v for v in j["verdicts"] if v["measurement"] == "carrier_suppression_db")
     assert v["status"] == "warn" and v["inconclusive"]
+
+
+def test_text_report_names_the_found_carrier(rng: np.random.Generator, tmp_path, capsys) -> None:  # type: ignore[no-untyped-def]
+    from iqscope.cli import main
+    from iqscope.io._sigmf import write_sigmf
+
+    meta = write_sigmf(tmp_path / "dsb", _dsb(rng).astype(np.complex64), FS, center_frequency_hz=7.1e6)
+    main(["grade", str(meta), "--mode", "dsb", "--carrier", str(F0 + 1000.0)])
+    out = " ".join(capsys.readouterr().out.split())
+    assert "the signal puts it at +3.000 kHz" in out

@@ -134,7 +134,6 @@ def sideband_figures(ctx: AnalysisContext) -> FigureSet:
         if reversal:
             out.artefacts.append(Artefact(kind="sideband_reversed", offset_hz=float(lay.f0), level_dbc=None,
                                           note=reversal + "; no sideband figure is graded"))
-            out.warnings.append(reversal)
             out.measurements[name] = failed("dB", f"not measured: {reversal}")
             return out
         f0 = lay.f0

@@ -195,7 +195,9 @@ def render_header(result: GradeResult, *, ascii_only: bool = False) -> Renderabl
             f"{format_duration(rec.duration_s)}, centre {centre}"
         ),
     )
-    mode = _modes_text(sig.mode) + (" (detected)" if sig.mode_detected else "")
+    mode = _modes_text(sig.mode) + (
+        (" (detected, a guess)" if sig.mode_confidence == "low" else " (detected)") if sig.mode_detected else ""
+    )
     if sig.carrier_offset_hz is None:
         carrier = "carrier not located"
     else:
@@ -209,6 +211,10 @@ def render_header(result: GradeResult, *, ascii_only: bool = False) -> Renderabl
         )
         if sig.how:
             carrier += f", {sig.how}"
+        if sig.carrier_error_hz is not None and sig.carrier_found_offset_hz is not None:
+            found = format_frequency(sig.carrier_found_offset_hz)
+            carrier += f"; the signal puts it at {'' if found.startswith('-') else '+'}{found} " \
+                       f"({format_frequency(sig.carrier_error_hz)} off)"
     grid.add_row("signal", Text(f"{mode}, {carrier}"))
     p = result.profile
     how = f"default for {sig.mode}" if result.default_limits else ("preset" if p.preset else p.origin)
