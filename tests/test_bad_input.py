@@ -194,7 +194,7 @@ def test_malformed_sidecar(tmp_path: Path, capsys: pytest.CaptureFixture[str]) -
     _assert_refused(capsys, str(path), match="malformed JSON")
 
 
-@pytest.mark.parametrize("datatype", ["cf33_le", "rf32_le", "ci12_le", 5])
+@pytest.mark.parametrize("datatype", ["cf33_le", "rf16_le", "ci12_le", 5])
 def test_unknown_datatype(tmp_path: Path, capsys: pytest.CaptureFixture[str], datatype: Any) -> None:
     meta = _sigmf(tmp_path)
     _edit_meta(meta, lambda d: d["global"].__setitem__("core:datatype", datatype))

@@ -36,7 +36,7 @@ def test_aliases_and_errors() -> None:
     assert parse_datatype("CF32").name == "cf32_le"
     assert parse_datatype("ci16").name == "ci16_le"
     assert parse_datatype("ci8_le").name == "ci8"
-    for bad in ("cf33_le", "ci64_le", "cf16", "rf32_le", "x", "", "ci16_me"):
+    for bad in ("cf33_le", "ci64_le", "cf16", "rf16_le", "ri64_le", "x", "", "ci16_me"):
         with pytest.raises(ValueError):
             parse_datatype(bad)
 

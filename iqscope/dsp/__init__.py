@@ -104,7 +104,7 @@ __all__ = [
 
 # Modules written alongside: levels, single-tone estimation, Allan deviation.
 from ._allan import AllanResult, adev, frequency_to_phase, mdev, oadev  # noqa: E402
-from ._levels import LevelAccumulator, Levels, Plateau, RailTracker, levels_of_blocks, power_to_dbfs  # noqa: E402
+from ._levels import IqCorrelation, LevelAccumulator, Levels, Plateau, RailTracker, levels_of_blocks, power_to_dbfs  # noqa: E402
 from ._tone import (  # noqa: E402
     LinePeak,
     ToneEstimate,
@@ -117,6 +117,7 @@ from ._tone import (  # noqa: E402
 __all__ += [
     "LevelAccumulator",
     "RailTracker",
+    "IqCorrelation",
     "Plateau",
     "Levels",
     "levels_of_blocks",

@@ -15,7 +15,7 @@ from dataclasses import dataclass
 import numpy as np
 import numpy.typing as npt
 
-__all__ = ["Levels", "LevelAccumulator", "levels_of_blocks", "power_to_dbfs", "RailTracker", "Plateau"]
+__all__ = ["Levels", "LevelAccumulator", "levels_of_blocks", "power_to_dbfs", "RailTracker", "Plateau", "IqCorrelation"]
 
 
 def power_to_dbfs(power: float) -> float | None:
@@ -180,6 +180,58 @@ class RailTracker:
     def max_component(self) -> float:
         """Largest component magnitude seen."""
         return max(self._top[0], self._top[1])
+
+
+class IqCorrelation:
+    """Streaming test of whether I and Q carry one real signal (Q = 0, I = Q, Q = k I + c).
+
+    Sums of I, Q, I^2, Q^2 and IQ in float64 (each float32 product is exact in float64),
+    in sub-blocks so memory stays bounded. :meth:`real_only` regresses the weaker channel
+    on the stronger one (least squares with an intercept) and compares the residual power
+    with what rounding alone leaves.
+    """
+
+    _SUB = 1 << 16
+
+    def __init__(self) -> None:
+        self.n = 0
+        self.s = np.zeros(5, np.float64)  # I, Q, II, QQ, IQ
+
+    def update(self, v: npt.NDArray[np.float32]) -> None:
+        """Add interleaved float32 I/Q components."""
+        for i in range(0, v.size, 2 * self._SUB):
+            part = v[i : i + 2 * self._SUB].astype(np.float64)
+            re, im = part[0::2], part[1::2]
+            self.n += re.size
+            self.s += (re.sum(), im.sum(), re @ re, im @ im, re @ im)
+
+    def moments(self) -> tuple[float, float, float]:
+        """Centred ``(var I, var Q, cov IQ)`` per sample (0s when empty)."""
+        if self.n == 0:
+            return 0.0, 0.0, 0.0
+        n = float(self.n)
+        si, sq, sii, sqq, siq = (float(x) for x in self.s)
+        return max(sii / n - (si / n) ** 2, 0.0), max(sqq / n - (sq / n) ** 2, 0.0), siq / n - si * sq / n**2
+
+    def real_only(self, quantisation_step: float = 0.0) -> tuple[bool, str, float]:
+        """``(is_real_only, dominant, k)``: True when one channel is (up to a constant) k
+        times the other (k = 0: a dead channel), to within float rounding (residual power
+        at most 1e-12 of the dominant channel's, -120 dB: float32 storage of k I
+        leaves about 1e-15) or, for integer data, the rounding of both
+        channels (``2 (1 + k^2) q^2 / 12`` for a step ``q``: twice the power of two
+        independent uniform roundings). ``dominant`` is ``"real"`` (I) or ``"imag"`` (Q).
+
+        A complex receiver's independent noise in I and Q keeps the residual far above
+        this, even for a signal that is conjugate-symmetric about the capture centre.
+        """
+        vi, vq, c = self.moments()
+        dom, vd, vo = ("real", vi, vq) if vi >= vq else ("imag", vq, vi)
+        if not vd > 0:
+            return False, dom, 0.0
+        k = c / vd
+        resid = max(vo - c * c / vd, 0.0)
+        allowance = 1e-12 * vd + 2.0 * (1.0 + k * k) * quantisation_step**2 / 12.0
+        return bool(resid <= allowance), dom, k
 
 
 @dataclass(frozen=True)

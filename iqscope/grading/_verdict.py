@@ -278,9 +278,13 @@ def grade(analysis: Analysis, limits: LimitsProfile | None = None) -> GradeResul
     skipped: list[str] = []
     # Measurements in analysis order first, then rules whose measurement is absent.
     reversed_ = next((a for a in analysis.artefacts if a.kind == "sideband_reversed"), None)
+    not_graded = getattr(analysis, "not_graded", {}) or {}
     for name, m in analysis.measurements.items():
         rule = by_name.get(name)
         if rule is None:
+            continue
+        if name in not_graded:
+            skipped.append(f"{name}: {not_graded[name]}")
             continue
         if reversed_ is not None and (name in SIDEBAND_DEPENDENT or (
                 name in BAND_DEPENDENT and reversed_.note.startswith(MIRROR_NOTE))):
@@ -291,6 +295,9 @@ def grade(analysis: Analysis, limits: LimitsProfile | None = None) -> GradeResul
     for rule in rules:
         name = rule.measurement
         if name in analysis.measurements:
+            continue
+        if name in not_graded:
+            skipped.append(f"{name}: {not_graded[name]}")
             continue
         if name in GRADED_ELSEWHERE:
             skipped.append(f"{name}: {GRADED_ELSEWHERE[name]}")

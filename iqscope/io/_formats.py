@@ -31,6 +31,7 @@ __all__ = [
     "parse_datatype",
     "SAMPLE_FORMATS",
     "SIGMF_DATATYPES",
+    "REAL_FORMATS",
 ]
 
 #: Kind of a component: float, signed integer or unsigned integer.
@@ -49,11 +50,14 @@ class SampleFormat:
     """Bits per component: 8, 16, 24, 32 or 64."""
     byteorder: Literal["<", ">"]
     """Byte order of each component (``"<"`` little endian for 8-bit formats too)."""
+    real: bool = False
+    """True for a real datatype (``r...``): one component per sample, decoded as I with
+    Q = 0 (see :mod:`iqscope.io._real` for how such recordings are analysed)."""
 
     @property
     def name(self) -> str:
         """The SigMF-style name, e.g. ``"ci16_le"``; 8-bit names carry no byte order."""
-        base = f"c{self.kind}{self.bits}"
+        base = f"{'r' if self.real else 'c'}{self.kind}{self.bits}"
         if self.bits == 8:
             return base
         return f"{base}_{'le' if self.byteorder == '<' else 'be'}"
@@ -65,8 +69,8 @@ class SampleFormat:
 
     @property
     def sample_bytes(self) -> int:
-        """Bytes per complex sample (I and Q)."""
-        return 2 * self.component_bytes
+        """Bytes per sample (I and Q; one component for a real datatype)."""
+        return self.component_bytes if self.real else 2 * self.component_bytes
 
     @property
     def is_sigmf(self) -> bool:
@@ -133,6 +137,10 @@ class SampleFormat:
                 if self.kind == "u":
                     comp -= work(self.full_scale)
                 comp *= work(1.0 / self.full_scale)
+        if self.real:
+            out.real = comp
+            out.imag = 0.0
+            return out
         out.real = comp[0::2]
         out.imag = comp[1::2]
         return out
@@ -149,15 +157,22 @@ class SampleFormat:
         if not np.iscomplexobj(x):
             x = x.astype(np.complex128)
         x = x.ravel()
+        if self.real:
+            x = x.real
+        if self.kind == "f" and self.real:
+            return np.ascontiguousarray(x, dtype=np.dtype(f"{self.byteorder}f{self.component_bytes}")).tobytes()
         if self.kind == "f":
             ftype = np.dtype(f"{self.byteorder}f{self.component_bytes}")
             inter = np.empty(2 * x.size, ftype)
             inter[0::2] = x.real
             inter[1::2] = x.imag
             return inter.tobytes()
-        comp = np.empty(2 * x.size, np.float64)
-        comp[0::2] = x.real
-        comp[1::2] = x.imag
+        if self.real:
+            comp = np.asarray(x, dtype=np.float64).copy()
+        else:
+            comp = np.empty(2 * x.size, np.float64)
+            comp[0::2] = x.real
+            comp[1::2] = x.imag
         if not np.all(np.isfinite(comp)):
             raise ValueError(f"cannot encode NaN or Inf samples as {self.name}")
         fs = self.full_scale
@@ -193,6 +208,12 @@ SAMPLE_FORMATS: Final[dict[str, SampleFormat]] = _all_formats()
 #: The SigMF complex datatypes (what :func:`~iqscope.io.write_sigmf` can write).
 SIGMF_DATATYPES: Final[tuple[str, ...]] = tuple(n for n, f in SAMPLE_FORMATS.items() if f.is_sigmf)
 
+#: Every real sample format (SigMF ``r...`` names: rf32, rf64, ri8, ri16, ri32, ru8,
+#: ru16, ru32 with their byte orders, and our ri24 for WAV), by name.
+REAL_FORMATS: Final[dict[str, SampleFormat]] = {
+    f"r{k[1:]}": SampleFormat(f.kind, f.bits, f.byteorder, real=True) for k, f in SAMPLE_FORMATS.items()
+}
+
 
 def parse_datatype(name: str) -> SampleFormat:
     """Return the :class:`SampleFormat` for a datatype name such as ``"ci16_le"`` or ``"cf32"``.
@@ -200,8 +221,11 @@ def parse_datatype(name: str) -> SampleFormat:
     A missing byte order means little endian (``"ci16"`` is ``"ci16_le"``); ``"ci8_le"``
     is accepted for ``"ci8"``. Case is ignored.
 
+    A real datatype (``"rf32_le"``, ``"ri16_le"``, ``"ru8"`` ...) gives a format with
+    ``real=True``.
+
     Raises:
-        ValueError: unknown name, or a real (``r...``) datatype, which is not I/Q.
+        ValueError: unknown name.
     """
     if not isinstance(name, str):
         raise ValueError(f"datatype {name!r} is not a string")
@@ -209,14 +233,12 @@ def parse_datatype(name: str) -> SampleFormat:
     m = _DATATYPE_RE.match(text)
     if m is None:
         raise ValueError(f"unknown sample datatype {name!r}")
-    if m["cr"] == "r":
-        raise ValueError(f"datatype {name!r} holds real samples; iqscope needs complex (I/Q) samples")
     bits = int(m["bits"])
     order: Literal["<", ">"] = ">" if m["end"] == "be" else "<"
     if bits == 8:
         order = "<"
-    key = f"c{m['kind']}{bits}" + ("" if bits == 8 else "_" + ("be" if order == ">" else "le"))
-    fmt = SAMPLE_FORMATS.get(key)
+    key = f"{m['cr']}{m['kind']}{bits}" + ("" if bits == 8 else "_" + ("be" if order == ">" else "le"))
+    fmt = (REAL_FORMATS if m["cr"] == "r" else SAMPLE_FORMATS).get(key)
     if fmt is None:
         raise ValueError(f"unknown sample datatype {name!r}")
     return fmt

@@ -236,7 +236,10 @@ def open_recording(
     Returns
     -------
     Recording
-        Samples read on demand as complex64 with full scale 1.
+        Samples read on demand as complex64 with full scale 1. A real datatype (SigMF
+        ``rf32_le``, ``ri16_le``, ``ru8`` ..., or ``format="ri16"`` for a raw file) gives the
+        complex baseband of its positive-frequency half at half the rate
+        (:class:`iqscope.io._real.RealAsComplex`).
 
     Raises
     ------
@@ -270,4 +273,6 @@ def open_recording(
         implied_datatype=implied,
         accept_truncated=bool(accept_truncated),
     )
-    return spec.open(req)
+    from ._real import as_complex_view
+
+    return as_complex_view(spec.open(req))

@@ -127,6 +127,10 @@ class Analysis:
     """Named curves for plots: "envelope", "spectrogram", "frequency" ..."""
     warnings: tuple[str, ...] = ()
     """Soft problems met while reading or measuring, for the report."""
+    not_graded: Mapping[str, str] = field(default_factory=dict)
+    """Measurements the data cannot support a verdict on, with the reason (e.g. sideband
+    figures of a real-only recording): :func:`iqscope.grading.grade` lists their rules
+    under ``not_graded`` instead of judging them."""
 
     def to_json(self) -> dict[str, Any]:
         """The ``recording``, ``signal`` and ``measurements`` parts of the contract."""

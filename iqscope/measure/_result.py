@@ -81,7 +81,7 @@ def failed(unit: str, note: str) -> Measurement:
 class Artefact:
     """Something in the recording that may be the receiver's, not the transmitter's."""
 
-    kind: Literal["dc_line", "iq_image", "clipping", "sideband_reversed", "other"]
+    kind: Literal["dc_line", "iq_image", "clipping", "sideband_reversed", "real_only", "other"]
     """What was seen."""
     offset_hz: float | None
     """Where, as an offset from the capture centre (None for clipping)."""

@@ -40,7 +40,7 @@ import numpy as np
 import numpy.typing as npt
 from scipy import fft as sp_fft
 
-from ..dsp._levels import Levels, RailTracker
+from ..dsp._levels import IqCorrelation, Levels, RailTracker
 from ..dsp._lines import (
     BandPower,
     LinePower,
@@ -128,6 +128,8 @@ class StreamStats:
     """Samples whose |Re x| or |Im x| equals ``max_component`` (a pile-up hints at clipping)."""
     rails: RailTracker | None = None
     """The clipping-plateau tracker of the pass (:class:`iqscope.dsp.RailTracker`)."""
+    iq: IqCorrelation | None = None
+    """I/Q cross statistics of the pass (:class:`iqscope.dsp.IqCorrelation`): real-only test."""
     block_mean_power: npt.NDArray[np.float64] = field(default_factory=lambda: np.zeros(0))
     """Mean |x|^2 per envelope block."""
     block_peak_power: npt.NDArray[np.float64] = field(default_factory=lambda: np.zeros(0))

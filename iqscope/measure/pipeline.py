@@ -51,7 +51,7 @@ import numpy.typing as npt
 from scipy import fft as sp_fft
 
 from ..dsp._envelope import block_envelope
-from ..dsp._levels import RailTracker
+from ..dsp._levels import IqCorrelation, RailTracker
 from ..dsp._noise import noise_floor
 from ..dsp._spectrum import AveragedSpectrum, SpectrumAccumulator, SubbandCapture
 from ..io._recording import MAX_FLOAT_COMPONENT, Recording
@@ -245,6 +245,7 @@ class _Levels:
         self.max_comp = 0.0
         self.n_at_max = 0
         self.rails = RailTracker()
+        self.iq = IqCorrelation()
 
     def update(self, x: npt.NDArray[np.complex64]) -> tuple[npt.NDArray[np.complex64], npt.NDArray[np.float32]]:
         v = x.view(np.float32)
@@ -271,6 +272,7 @@ class _Levels:
             self.n_at_max += int(np.count_nonzero(np.abs(v) == vmax))
         self.rails.update_components(v)
         self.rails.update_power(p)
+        self.iq.update(v)
         return x, p
 
 
@@ -347,6 +349,7 @@ def _stream(
         max_component=lev.max_comp,
         n_at_max_component=lev.n_at_max,
         rails=lev.rails,
+        iq=lev.iq,
         block_mean_power=np.concatenate(env_mean) if env_mean else np.zeros(0),
         block_peak_power=np.concatenate(env_peak) if env_peak else np.zeros(0),
         block_times_s=np.asarray(times, dtype=np.float64),
@@ -442,6 +445,81 @@ def _ordered(meas: dict[str, Measurement]) -> dict[str, Measurement]:
     return out
 
 
+#: Figures a real-only I/Q recording cannot support: which side of the receiver's LO a
+#: component came from is lost (the positive half may be the emission or its mirror),
+#: and what lay on the other side folds onto it.
+REAL_ONLY_NOT_GRADED: Final[Mapping[str, str]] = {
+    "opposite_sideband_suppression_db": "real-only recording: the sideband sense is lost (the mirror image folds "
+    "the other side of the receiver's centre onto this one)",
+    "sideband_balance_db": "real-only recording: upper and lower sidebands cannot be told from their mirror images",
+    "frequency_offset_hz": "real-only recording: the sign of the offset from the receiver's centre is lost",
+}
+
+
+def _real_only(recording: Recording, stats: StreamStats) -> tuple[str, float] | None:
+    """``(dominant channel, k)`` when I and Q of a complex recording carry one real signal
+    (Q = 0, I = Q, Q = k I: a sound card or a mis-set driver), else None."""
+    from ..io._formats import parse_datatype
+    from ..io._real import RealAsComplex
+
+    # fewer samples than a spectrum of useful resolution: toy data (two-level test
+    # patterns are trivially collinear), never a recording worth re-reading
+    if isinstance(recording, RealAsComplex) or stats.iq is None or recording.n_samples < 4096:
+        return None
+    try:
+        q = parse_datatype(recording.datatype).quantisation_step * float(getattr(recording, "_scale", 1.0))
+    except ValueError:
+        q = 0.0
+    ok, dom, k = stats.iq.real_only(q)
+    return (dom, k) if ok else None
+
+
+def _analyse_real_only(
+    recording: Recording,
+    request: AnalysisRequest,
+    providers: Sequence[FigureProvider] | None,
+    channel: str,
+    k: float,
+) -> Analysis:
+    """Analyse a real-only I/Q recording from its positive-frequency half.
+
+    The one real signal (the stronger channel) is translated by fs/4 and decimated
+    (:class:`iqscope.io._real.RealAsComplex`), so the mirror image is gone from the
+    analysed band; the figures that depend on which side of the receiver's centre a
+    component lay (:data:`REAL_ONLY_NOT_GRADED`) are reported but not graded, and an
+    artefact of kind ``real_only`` says what was found.
+    """
+    from ..io._real import RealAsComplex
+
+    view = RealAsComplex(recording, channel=channel)
+    inner = analyse(view, request, providers)
+    if channel == "real":
+        what = "Q is zero" if k == 0 else ("I and Q are equal" if abs(k - 1) < 1e-6 else f"Q = {k:.4g} x I")
+    else:
+        what = "I is zero" if k == 0 else f"I = {k:.4g} x Q"
+    note = (
+        f"real-only recording: {what} (to rounding): both channels carry one real signal (a sound card, or a "
+        "receiver's driver set to real sampling), so everything has a mirror image about the capture centre. "
+        f"Analysed from its positive-frequency half (fs/4 translation: rate {view.sample_rate_hz:g} Hz, centre "
+        f"+{recording.sample_rate_hz / 4:g} Hz from the file's); sideband sense, sideband balance and the sign of "
+        "the offset are not graded"
+    )
+    art = Artefact(kind="real_only", offset_hz=None, level_dbc=None, note=note)
+    measurements = dict(inner.measurements)
+    not_graded = {name: why for name, why in REAL_ONLY_NOT_GRADED.items()}
+    for name in not_graded:
+        m = measurements.get(name)
+        if m is not None:
+            measurements[name] = replace(m, note=(m.note + "; " if m.note else "") + "not graded: " + not_graded[name])
+    return replace(
+        inner,
+        measurements=measurements,
+        artefacts=(art, *inner.artefacts),
+        warnings=(note, *inner.warnings),
+        not_graded={**inner.not_graded, **not_graded},
+    )
+
+
 def analyse(
     recording: Recording,
     request: AnalysisRequest = AnalysisRequest(),
@@ -501,6 +579,9 @@ def analyse(
         survey, bands = plan_capture(recording, plan.nfft, step, WINDOW, reference_hz=request.reference_hz,
                                      line_hz=_drift_option(request, "line_hz"))
     spectrum, stats, env_trace, spec_trace = _stream(recording, plan, request.progress, bands)
+    real = _real_only(recording, stats)
+    if real is not None:
+        return _analyse_real_only(recording, request, providers, *real)
     stats = replace(stats, line_survey=survey, line_bands=tuple(bands))
     warnings.extend(w for w in getattr(recording, "warnings", ()) if w not in warnings)
     floor = noise_floor(spectrum)
