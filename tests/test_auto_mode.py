@@ -137,3 +137,13 @@ def test_two_tone_with_tilt_and_receiver_image(rng: np.random.Generator) -> None
     assert j["signal"]["mode"] == "two-tone"
     assert j["measurements"]["imd3_dbc"]["value"] is not None
     assert j["overall"] != "pass"
+
+
+def test_dsb_of_two_tones_is_sure(rng: np.random.Generator) -> None:
+    """DSB of a 700 + 1900 Hz audio pair: four lines in two mirror pairs about f0; the outer
+    pair (at 1900 Hz, no odd multiple of 700 Hz) is what no two-tone SSB test has."""
+    f0 = 3000.0
+    x = _tone(f0 + 700, 0.2) + _tone(f0 - 700, 0.2) + _tone(f0 + 1900, 0.15) + _tone(f0 - 1900, 0.15)
+    j = _grade(_rx(rng, x))
+    assert j["signal"]["mode"] == "dsb" and j["signal"]["mode_confidence"] == "high"
+    assert j["signal"]["carrier_offset_hz"] == pytest.approx(f0, abs=0.05)

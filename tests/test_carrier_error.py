@@ -134,3 +134,10 @@ def test_text_report_names_the_found_carrier(rng: np.random.Generator, tmp_path,
     main(["grade", str(meta), "--mode", "dsb", "--carrier", str(F0 + 1000.0)])
     out = " ".join(capsys.readouterr().out.split())
     assert "the signal puts it at +3.000 kHz" in out
+
+
+def test_am_with_a_stronger_neighbour_far_away_is_no_error(rng: np.random.Generator) -> None:
+    """--carrier on the AM carrier; a 6 dB stronger unrelated line 12 kHz away is not it."""
+    am = 0.3 * (1 + 0.5 * np.cos(2 * np.pi * 1000 * T)) * np.exp(2j * np.pi * F0 * T)
+    j = _run(_rx(rng, am + _tone(-9000.0, 0.6)), mode="am", carrier_hz=F0)
+    assert j["signal"]["carrier_error_hz"] is None

@@ -920,7 +920,14 @@ def _check_carrier(
     how = ""
     strongest = prep.peaks[0]
     if mode in ("am", "cw"):
-        found, how = strongest.frequency_hz, f"carrier line at {strongest.frequency_hz:.2f} Hz (the strongest line)"
+        at_user = line_power(spectrum, f_user, floor.psd, search_bins=2)
+        # A line at --carrier within 3 dB of the strongest line within 5 kHz of it is a
+        # carrier (an AM carrier stands >= 6 dB above each sideband line, m <= 1): a
+        # stronger neighbour further away does not make the user's carrier wrong.
+        near = [p for p in prep.peaks if abs(p.frequency_hz - f_user) <= 5000.0] or [strongest]
+        top = max(near, key=lambda p: p.power)
+        if not (at_user.detected and at_user.power >= 0.5 * top.power):
+            found, how = top.frequency_hz, f"carrier line at {top.frequency_hz:.2f} Hz (the strongest line near --carrier)"
     elif mode == "dsb":
         s = np.where(prep.dc_lobe, 0.0, _excess(spectrum, floor.psd))
         fd, how_d = _dsb_centre(spectrum, s, prep.peaks, h)
@@ -975,6 +982,9 @@ class _Pair:
     """A line stands at their midpoint (a DSB carrier, residual or not)."""
     products: tuple[float, ...]
     """Odd-order products detected at f1 - k d and f2 + k d (d = f2 - f1, k = 1, 2)."""
+    other_pairs: bool = False
+    """Another pair of lines symmetric about the midpoint at a distance that is no odd
+    multiple of d / 2 (DSB of several tones; a two-tone test has none)."""
 
 
 #: Two lines within this ratio (3 dB) are "equal" test tones (two-tone tests set the
@@ -1021,13 +1031,23 @@ def _equal_pair(
     products = tuple(sorted(found)) if len(third) == 2 else ()
     if q.power < _EQUAL_TONES * p.power and not products:
         return None
-    return _Pair(f1, f2, carrier_line, products)
+    other = False
+    for r in peaks[2:]:
+        u = abs(r.frequency_hz - mid)
+        kk = u / (0.5 * d)
+        if u <= gap or abs(kk - 2 * round((kk - 1) / 2) - 1) * 0.5 * d <= tol:
+            continue  # the carrier, or where odd-order products fall
+        mirror = 2 * mid - r.frequency_hz
+        if any(abs(t.frequency_hz - mirror) <= tol and t.power >= 0.25 * r.power for t in peaks if t is not r):
+            other = True
+            break
+    return _Pair(f1, f2, carrier_line, products, other)
 
 
 def _dsb_confidence(pair: _Pair | None) -> str:
     """Two bare equal lines with no carrier line between them and no products are as
     likely a distortion-free two-tone test as DSB with a tone: a guess."""
-    if pair is not None and not pair.carrier_line and not pair.products:
+    if pair is not None and not pair.carrier_line and not pair.products and not pair.other_pairs:
         return "low"
     return "high"
 
