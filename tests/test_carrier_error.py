@@ -141,3 +141,10 @@ def test_am_with_a_stronger_neighbour_far_away_is_no_error(rng: np.random.Genera
     am = 0.3 * (1 + 0.5 * np.cos(2 * np.pi * 1000 * T)) * np.exp(2j * np.pi * F0 * T)
     j = _run(_rx(rng, am + _tone(-9000.0, 0.6)), mode="am", carrier_hz=F0)
     assert j["signal"]["carrier_error_hz"] is None
+
+
+def test_html_facts_name_the_found_carrier(rng: np.random.Generator) -> None:
+    from iqscope.report._html import _facts
+
+    an = analyse(ArrayRecording(_dsb(rng), FS, 7.1e6), AnalysisRequest(mode="dsb", carrier_hz=F0 + 1000.0))
+    assert "the signal puts it at offset" in _facts(grade(an))

@@ -124,7 +124,9 @@ def _facts(result: GradeResult) -> str:
         ("sample rate", format_rate(rec.sample_rate_hz)),
         ("length", f"{format_count(rec.n_samples)} samples, {format_duration(rec.duration_s)}"),
         ("capture centre", format_frequency(rec.center_frequency_hz)),
-        ("mode", sig.mode + (" (detected)" if sig.mode_detected else "")),
+        ("mode", sig.mode + (
+            (" (detected, a guess)" if sig.mode_confidence == "low" else " (detected)") if sig.mode_detected else ""
+        )),
     ]
     if sig.carrier_offset_hz is not None:
         carrier = f"offset {format_frequency(sig.carrier_offset_hz)}"
@@ -132,6 +134,9 @@ def _facts(result: GradeResult) -> str:
             carrier = f"{format_frequency(sig.carrier_frequency_hz)} ({carrier})"
         if sig.how:
             carrier += f", {sig.how}"
+        if sig.carrier_error_hz is not None and sig.carrier_found_offset_hz is not None:
+            carrier += (f"; the signal puts it at offset {format_frequency(sig.carrier_found_offset_hz)} "
+                        f"({format_frequency(sig.carrier_error_hz)} off)")
         rows.append(("carrier", carrier))
     p = result.profile
     how = f"default for {sig.mode}" if result.default_limits else ("preset" if p.preset else p.origin)
