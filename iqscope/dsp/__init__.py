@@ -103,7 +103,7 @@ __all__ = [
 ]
 
 # Modules written alongside: levels, single-tone estimation, Allan deviation.
-from ._allan import AllanResult, adev, frequency_to_phase, mdev, oadev  # noqa: E402
+from ._allan import AllanResult, adev, frequency_to_phase, hdev, mdev, oadev, ohdev  # noqa: E402
 from ._levels import IqCorrelation, LevelAccumulator, Levels, Plateau, RailTracker, levels_of_blocks, power_to_dbfs  # noqa: E402
 from ._tone import (  # noqa: E402
     LinePeak,
@@ -132,5 +132,7 @@ __all__ += [
     "adev",
     "frequency_to_phase",
     "mdev",
+    "hdev",
+    "ohdev",
     "oadev",
 ]

@@ -8,6 +8,10 @@ points; fractional frequency ``y`` converts to phase by ``x = tau0 * cumsum([0, 
   ``sigma^2(m tau0) = sum (x[i+2m] - 2x[i+m] + x[i])^2 / (2 n (m tau0)^2)``,
   i = 0, m, 2m, ... (n terms).
 - Overlapping ADEV (eq. 11): the same sum over every i = 0 .. N-2m-1 (n = N - 2m).
+- Hadamard deviation (SP 1065 section 5.2.8, eq. 17/18): third differences of phase,
+  ``H sigma^2(m tau0) = sum (x[i+3m] - 3x[i+2m] + 3x[i+m] - x[i])^2 / (6 n (m tau0)^2)``;
+  non-overlapping (i = 0, m, 2m, ...) and overlapping (every i = 0 .. N-3m-1). A linear
+  frequency drift cancels exactly in the third difference.
 - MDEV (eq. 14): ``sigma^2 = sum_j [sum_{i=j}^{j+m-1} (x[i+2m] - 2x[i+m] + x[i])]^2
   / (2 m^2 (m tau0)^2 (N - 3m + 1))``.
 
@@ -39,13 +43,15 @@ __all__ = [
     "adev",
     "oadev",
     "mdev",
+    "hdev",
+    "ohdev",
 ]
 
 #: What the input array holds: ``"phase"`` (time error x, s) or ``"frequency"``
 #: (fractional frequency y, dimensionless).
 DataType = Literal["phase", "frequency"]
 
-_Kind = Literal["adev", "oadev", "mdev"]
+_Kind = Literal["adev", "oadev", "mdev", "hdev", "ohdev"]
 
 
 @dataclass(frozen=True)
@@ -53,7 +59,7 @@ class AllanResult:
     """Deviations at a set of averaging times."""
 
     kind: str
-    """"adev", "oadev" or "mdev"."""
+    """"adev", "oadev", "mdev", "hdev" or "ohdev"."""
     taus_s: npt.NDArray[np.float64]
     """Averaging times tau = m tau0, s."""
     deviation: npt.NDArray[np.float64]
@@ -106,13 +112,18 @@ def octave_factors(n_phase: int, kind: _Kind = "oadev") -> npt.NDArray[np.int64]
     ----------
     n_phase : int
         Number of phase points N.
-    kind : {"adev", "oadev", "mdev"}
-        ADEV/OADEV need N - 2m >= 1; MDEV needs N - 3m + 1 >= 1.
+    kind : {"adev", "oadev", "mdev", "hdev", "ohdev"}
+        ADEV/OADEV need N - 2m >= 1; MDEV needs N - 3m + 1 >= 1; HDEV/OHDEV N - 3m >= 1.
     """
     out: list[int] = []
     m = 1
     while True:
-        ok = (n_phase - 3 * m + 1 >= 1) if kind == "mdev" else (n_phase - 2 * m >= 1)
+        if kind == "mdev":
+            ok = n_phase - 3 * m + 1 >= 1
+        elif kind in ("hdev", "ohdev"):
+            ok = n_phase - 3 * m >= 1
+        else:
+            ok = n_phase - 2 * m >= 1
         if not ok:
             break
         out.append(m)
@@ -141,7 +152,12 @@ def _factors(
     ms = np.unique(np.asarray(factors, dtype=np.int64))
     if ms.size and ms[0] < 1:
         raise ValueError("averaging factors must be >= 1")
-    limit = (n_phase + 1) // 3 if kind == "mdev" else (n_phase - 1) // 2
+    if kind == "mdev":
+        limit = (n_phase + 1) // 3
+    elif kind in ("hdev", "ohdev"):
+        limit = (n_phase - 1) // 3
+    else:
+        limit = (n_phase - 1) // 2
     return ms[ms <= limit]
 
 
@@ -159,6 +175,14 @@ def _deviation(
     for m in ms:
         m = int(m)
         tau = m * tau0_s
+        if kind in ("hdev", "ohdev"):
+            h = x[3 * m :] - 3.0 * x[2 * m : x.size - m] + 3.0 * x[m : x.size - 2 * m] - x[: x.size - 3 * m]
+            if kind == "hdev":
+                h = h[::m]
+            n = h.size
+            devs.append(math.sqrt(float(np.sum(h * h)) / (6.0 * n * tau * tau)))
+            ns.append(n)
+            continue
         d = x[2 * m :] - 2.0 * x[m:-m] + x[: -2 * m]  # N - 2m second differences
         if kind == "adev":
             d = d[::m]
@@ -270,3 +294,45 @@ def mdev(
     74.78849
     """
     return _deviation("mdev", data, tau0_s, data_type, factors)
+
+
+def hdev(
+    data: npt.ArrayLike,
+    tau0_s: float,
+    *,
+    data_type: DataType = "phase",
+    factors: Sequence[int] | npt.ArrayLike | None = None,
+) -> AllanResult:
+    """Hadamard deviation (non-overlapping), NIST SP 1065 section 5.2.8 eq. 17.
+
+    Parameters are those of :func:`adev`. Third differences of phase: insensitive to a
+    linear frequency drift (which the Allan deviation reads as ``D tau / sqrt(2)``).
+
+    References
+    ----------
+    .. [1] W. J. Riley, NIST SP 1065 (2008), section 5.2.8, eq. (17).
+    """
+    return _deviation("hdev", data, tau0_s, data_type, factors)
+
+
+def ohdev(
+    data: npt.ArrayLike,
+    tau0_s: float,
+    *,
+    data_type: DataType = "phase",
+    factors: Sequence[int] | npt.ArrayLike | None = None,
+) -> AllanResult:
+    """Overlapping Hadamard deviation, NIST SP 1065 section 5.2.9 eq. 18.
+
+    Parameters are those of :func:`adev`.
+
+    Notes
+    -----
+    ``H sigma^2(m tau0) = sum_{i=0}^{N-3m-1} (x[i+3m] - 3x[i+2m] + 3x[i+m] - x[i])^2
+    / (6 (m tau0)^2 (N-3m))``.
+
+    References
+    ----------
+    .. [1] W. J. Riley, NIST SP 1065 (2008), section 5.2.9, eq. (18).
+    """
+    return _deviation("ohdev", data, tau0_s, data_type, factors)

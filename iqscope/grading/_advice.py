@@ -67,6 +67,8 @@ _BY_MEASUREMENT: Final[Mapping[str, str]] = {
     "frequency error with --reference)",
     "warmup_settling_s": _DRIFT,
     "allan_deviation": _DRIFT,
+    "hadamard_deviation": _DRIFT,
+    "allan_deviation_drift_removed": _DRIFT,
     "clipped_fraction": ARTEFACT_ADVICE["clipping"],
     "peak_dbfs": "the signal is close to the receiver's full scale: add attenuation",
     "drift_hz_per_min": _DRIFT,

@@ -50,6 +50,8 @@ DRIFT_FIGURES: Final[Mapping[str, str]] = {
     "drift_worst_window_hz": "Worst window",
     "warmup_settling_s": "Warm-up settling",
     "allan_deviation": "Allan deviation",
+    "hadamard_deviation": "Hadamard deviation",
+    "allan_deviation_drift_removed": "Allan deviation, drift removed",
 }
 #: Plots ``drift_plots`` may produce (file names ``STEM-drift-NAME.png``).
 DRIFT_PLOT_NAMES: Final = ("frequency", "allan")

@@ -93,6 +93,8 @@ LABELS: Final[Mapping[str, str]] = {
     "drift_worst_window_hz": "worst drift in window",
     "warmup_settling_s": "warm-up settling",
     "allan_deviation": "Allan deviation",
+    "hadamard_deviation": "Hadamard deviation",
+    "allan_deviation_drift_removed": "Allan deviation, drift removed",
     # the recording
     "noise_floor_dbfs_per_hz": "noise floor",
     "peak_dbfs": "peak level",
@@ -167,7 +169,7 @@ def measurement_text(name: str, m: Measurement, *, ascii_only: bool = False) -> 
         still = _number(m.details.get("lower_bound_s"))
         if still is not None and still > 0:
             text = f"> {format_duration(still)} (not settled)"
-    if name == "allan_deviation" and m.value is not None:
+    if name in ("allan_deviation", "hadamard_deviation", "allan_deviation_drift_removed") and m.value is not None:
         tau = _number(m.details.get("tau_quoted_s"))
         if tau is not None and tau > 0:
             text += f" at {'tau' if ascii_only else chr(0x3C4)} = {format_duration(tau)}"

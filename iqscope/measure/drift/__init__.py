@@ -16,7 +16,8 @@ so it is followed as it moves. :func:`drift_measurements` turns the track into f
 
 ``frequency_offset_hz`` (and ``frequency_error_hz`` from a nominal carrier),
 ``drift_hz_per_min``, ``drift_peak_to_peak_hz``, ``drift_worst_window_hz``,
-``warmup_settling_s`` and ``allan_deviation``.
+``warmup_settling_s``, ``allan_deviation``, ``hadamard_deviation`` and
+``allan_deviation_drift_removed``.
 
 With a *stable line* (``--reference``: a standard-frequency transmission or a disciplined
 marker received in the same capture) the stable line is followed too and the drift is
@@ -289,6 +290,8 @@ def _drift_provides(ctx: AnalysisContext) -> Mapping[str, str]:
         out["frequency_error_hz"] = "Hz"
     if ctx.recording.center_frequency_hz is not None:
         out["allan_deviation"] = "1"
+        out["hadamard_deviation"] = "1"
+        out["allan_deviation_drift_removed"] = "1"
     return out
 
 

@@ -18,7 +18,7 @@ from typing import Any
 import numpy as np
 import numpy.typing as npt
 
-from ...dsp._allan import AllanResult, oadev
+from ...dsp._allan import AllanResult, oadev, ohdev
 from .._analysis import Trace
 from .._result import Measurement, failed
 from ._constants import (
@@ -31,6 +31,12 @@ from ._constants import (
 )
 from ._plan import LinePlan
 from ._tracker import FrequencyTrack
+
+
+#: The stability figures (all need the RF frequency): overlapping Allan deviation, the
+#: overlapping Hadamard deviation, and the overlapping Allan deviation after removing the
+#: fitted linear drift.
+STABILITY_NAMES = ("allan_deviation", "hadamard_deviation", "allan_deviation_drift_removed")
 
 
 # --------------------------------------------------------------------------------------
@@ -207,7 +213,8 @@ def drift_measurements(
                f"(need {MIN_BLOCKS})")
         nulls = {nm: failed(u, f"not measured: {why}.") for nm, u in zip(names, units)}
         if track.center_frequency_hz is not None:
-            nulls["allan_deviation"] = failed("1", f"not measured: {why}.")
+            for nm in STABILITY_NAMES:
+                nulls[nm] = failed("1", f"not measured: {why}.")
         return DriftResult(track, nulls, None, None, nominal, (why,), details)
 
     T = track.block_s
@@ -226,8 +233,9 @@ def drift_measurements(
     details["key_down_s"] = key_down
     allan: AllanResult | None = None
     if track.center_frequency_hz is not None:
-        adev_m, allan = _allan_measurement(track, track.center_frequency_hz, t, f, s, T, mean_f, rel_note)
+        adev_m, allan, extra_ms = _allan_measurement(track, track.center_frequency_hz, t, f, s, T, mean_f, rel_note)
         ms["allan_deviation"] = adev_m
+        ms.update(extra_ms)
     warnings.extend(_track_warnings(track, key_i))
     return DriftResult(track, ms, allan, (icpt, slope), nominal, tuple(warnings), details)
 
@@ -430,6 +438,11 @@ def _settling_measurement(
     return m, key_i, key_down
 
 
+def _curve_details(r: AllanResult) -> dict[str, Any]:
+    return {"tau_s": r.taus_s.tolist(), "deviation": r.deviation.tolist(),
+            "error": r.error.tolist(), "n": r.n_terms.tolist()}
+
+
 def _allan_measurement(
     track: FrequencyTrack,
     center_frequency_hz: float,
@@ -439,36 +452,42 @@ def _allan_measurement(
     T: float,
     mean_f: float,
     rel_note: str,
-) -> tuple[Measurement, AllanResult | None]:
+) -> tuple[Measurement, AllanResult | None, dict[str, Measurement]]:
     """``allan_deviation`` (``center_frequency_hz``: the track's capture centre, Hz): overlapping ADEV of fractional
     frequency on the longest run of usable blocks, quoted at the octave tau nearest
-    :data:`ADEV_QUOTE_TAU_S`; and the whole ADEV curve, or None.
+    :data:`ADEV_QUOTE_TAU_S`; the whole ADEV curve, or None; and the two companions
+    ``hadamard_deviation`` (overlapping Hadamard deviation, insensitive to a linear
+    frequency drift) and ``allan_deviation_drift_removed`` (overlapping ADEV of the same
+    series less its least-squares line), quoted at the same tau when they reach it.
 
     References
     ----------
-    .. [1] W. J. Riley, *Handbook of Frequency Stability Analysis*, NIST SP 1065, 2008, eq. 11.
+    .. [1] W. J. Riley, *Handbook of Frequency Stability Analysis*, NIST SP 1065, 2008,
+       eq. 11 (OADEV), sections 5.2.8-5.2.9 (Hadamard and overlapping Hadamard;
+       equation and section numbers from memory).
     """
     f_rf = center_frequency_hz + mean_f + (track.plan.carrier_shift_hz or 0.0)
     ok = track.valid if track.stable_valid is None else (track.valid & track.stable_valid)
     a, b = _longest_run(ok)
     if b - a < MIN_BLOCKS or f_rf <= 0:
-        return failed(
-            "1", f"not measured: the longest run of usable blocks is {b - a} (need {MIN_BLOCKS})."
-        ), None
+        why = f"not measured: the longest run of usable blocks is {b - a} (need {MIN_BLOCKS})."
+        return failed("1", why), None, {nm: failed("1", why) for nm in STABILITY_NAMES[1:]}
     sel = np.isin(track.times_s, track.times_s[a:b])
     tf = np.isin(t, track.times_s[a:b])
     y = (f[tf] - mean_f) / f_rf
     allan = oadev(y, T, data_type="frequency")
     if allan.taus_s.size == 0:
-        return failed("1", "not measured: too few blocks for any tau."), None
+        why = "not measured: too few blocks for any tau."
+        return failed("1", why), None, {nm: failed("1", why) for nm in STABILITY_NAMES[1:]}
     tau, dev, err = allan.at(ADEV_QUOTE_TAU_S)
     floor = float(np.median(s[tf])) / f_rf
+    n_run = int(sel.sum())
     m = Measurement(
         value=dev,
         unit="1",
         uncertainty=err,
         note=(f"Overlapping Allan deviation of fractional frequency at tau = {tau:g} s "
-              f"(NIST SP 1065 eq. 11), RF {f_rf / 1e6:.6f} MHz, {int(sel.sum())} "
+              f"(NIST SP 1065 eq. 11), RF {f_rf / 1e6:.6f} MHz, {n_run} "
               f"contiguous blocks of {T:g} s. The estimator's own noise gives about "
               f"{floor:.1e} at tau = {T:g} s, falling as tau^-1.5." + rel_note),
         details={
@@ -480,7 +499,42 @@ def _allan_measurement(
             "rf_frequency_hz": f_rf,
         },
     )
-    return m, allan
+    extra: dict[str, Measurement] = {}
+    hd = ohdev(y, T, data_type="frequency")
+    if hd.taus_s.size == 0:
+        extra["hadamard_deviation"] = failed("1", "not measured: too few blocks for any tau (needs 4).")
+    else:
+        # quoted at the ADEV's tau when the Hadamard reaches it, else at its nearest
+        h_tau, h_dev, h_err = hd.at(tau)
+        extra["hadamard_deviation"] = Measurement(
+            value=h_dev, unit="1", uncertainty=h_err,
+            note=(f"Overlapping Hadamard deviation of fractional frequency at tau = {h_tau:g} s "
+                  "(NIST SP 1065 eq. 18): third differences of phase, so a linear frequency "
+                  "drift does not count; beside the Allan deviation it tells a quiet oscillator "
+                  "that drifts (Hadamard well below Allan) from a noisy one (the two alike)."
+                  + rel_note),
+            details=dict(_curve_details(hd), tau_quoted_s=h_tau, rf_frequency_hz=f_rf),
+        )
+    tt = t[tf]
+    if tt.size >= 3:
+        tm = float(tt.mean())
+        slope = float(np.sum((tt - tm) * (y - y.mean()))) / float(np.sum((tt - tm) ** 2))
+        y_res = y - y.mean() - slope * (tt - tm)
+        dr = oadev(y_res, T, data_type="frequency")
+        d_tau, d_dev, d_err = dr.at(tau)
+        extra["allan_deviation_drift_removed"] = Measurement(
+            value=d_dev, unit="1", uncertainty=d_err,
+            note=(f"Overlapping Allan deviation (NIST SP 1065 eq. 11) at tau = {d_tau:g} s of the "
+                  f"fractional frequency less its least-squares line (slope "
+                  f"{slope * f_rf * 60:+.3g} Hz/min over this run): what is left when the "
+                  "drift is taken out (drift removal before a stability analysis: common "
+                  "practice, NIST SP 1065)." + rel_note),
+            details=dict(_curve_details(dr), tau_quoted_s=d_tau, rf_frequency_hz=f_rf,
+                         removed_drift_hz_per_min=slope * f_rf * 60.0),
+        )
+    else:
+        extra["allan_deviation_drift_removed"] = failed("1", "not measured: too few blocks.")
+    return m, allan, extra
 
 
 def _track_warnings(track: FrequencyTrack, key_i: int) -> list[str]:
