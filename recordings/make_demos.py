@@ -11,6 +11,9 @@ ssb20m_kit               a 20 m phasing SSB kit, USB, voice-like noise 300-2700 
 ssb20m_twotone           the same kit on a two-tone test, its PA slightly compressing
 dsb40m_bench             a 40 m DSB rig whose diode ring is out of balance (carrier leak)
 beacon30m_warmup.wav     a 30 m beacon's carrier drifting while its crystal warms up
+dsb40m_counts            a second 40 m DSB rig, recorded by a member's own 12-bit receiver
+                         whose program writes cf32 in ADC counts (|I|, |Q| up to 2048),
+                         tuned so that the carrier sits 250 Hz from the capture centre
 =======================  ==============================================================
 
 Every signal is synthesized by :mod:`iqscope.synth` from a fixed seed; the SigMF files
@@ -36,6 +39,9 @@ import sys
 from pathlib import Path
 from typing import Any
 
+import numpy as np
+
+from iqscope.synth._files import SYNTH_EXTENSION
 from iqscope.synth import (
     Am,
     Amplifier,
@@ -45,6 +51,7 @@ from iqscope.synth import (
     FrequencyPlan,
     Receiver,
     SignalSpec,
+    SYNTH_KEY,
     Ssb,
     Tone,
     TwoTone,
@@ -153,7 +160,40 @@ def demo_specs() -> dict[str, tuple[SignalSpec, dict[str, Any]]]:
         ),
         {"format": "wav", "bits": 16},
     )
+    specs["dsb40m_counts"] = (
+        SignalSpec(
+            Dsb(Tone(1000.0), carrier_leak_dbc=-38.0, carrier_leak_phase_deg=20.0),
+            sample_rate_hz=24000.0,
+            duration_s=4.0,
+            level_dbfs=-9.0,
+            frequency=FrequencyPlan(carrier_offset_hz=250.0),
+            noise_dbfs_per_hz=-112.0,
+            # a small 12-bit receiver: its DC line 250 Hz from the carrier, a -45 dBc image
+            receiver=Receiver(dc_offset_dbfs=-52.0, dc_phase_deg=40.0, image_dbc=-45.0, adc_bits=12),
+            center_frequency_hz=7_120_000.0,
+            seed=4012,
+        ),
+        # written as float32 of the converter's codes: full scale is 2048, not 1.0
+        {"format": "sigmf", "datatype": "cf32_le", "adc_counts": 2048},
+    )
     return specs
+
+
+def _write_counts(path: Path, spec: SignalSpec, counts: int) -> None:
+    """Write ``spec`` as a receiver program that stores ADC counts in cf32 does: the
+    samples (already quantised to the converter's codes, full scale 1) times ``counts``,
+    exact in float32."""
+    from iqscope.io import write_sigmf
+    from iqscope.synth import generate
+
+    blocks = (b * np.float32(counts) for b in generate(spec))
+    write_sigmf(
+        path, blocks, spec.sample_rate_hz, center_frequency_hz=spec.center_frequency_hz, datatype="cf32_le",
+        description=describe(spec) + f"; written in ADC counts (full scale {counts})",
+        extra_global={SYNTH_KEY: synth_metadata(spec, GENERATOR), "core:extensions": [SYNTH_EXTENSION],
+                      "core:recorder": GENERATOR},
+        force=True,
+    )
 
 
 def _files(out: Path, name: str, fmt: str) -> list[Path]:
@@ -177,7 +217,12 @@ def make_demos(out: Path) -> list[Path]:
     manifest: dict[str, Any] = {"generator": GENERATOR, "recordings": {}}
     for name, (spec, options) in demo_specs().items():
         path = out / name
-        write_signal(path, spec, generator=GENERATOR, force=True, **options)
+        options = dict(options)
+        counts = options.pop("adc_counts", None)
+        if counts is None:
+            write_signal(path, spec, generator=GENERATOR, force=True, **options)
+        else:
+            _write_counts(path, spec, int(counts))
         files = _files(out, name, options["format"])
         written += files
         entry = synth_metadata(spec, GENERATOR)
@@ -188,6 +233,8 @@ def make_demos(out: Path) -> list[Path]:
             "files": {f.name: _sha256(f) for f in files},
             **entry,
         }
+        if counts is not None:
+            manifest["recordings"][name]["full_scale"] = counts
     index = out / "demos.json"
     index.write_text(json.dumps(manifest, indent=2) + "\n", encoding="utf-8")
     written.append(index)

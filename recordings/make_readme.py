@@ -17,6 +17,7 @@ from __future__ import annotations
 
 import argparse
 import json
+import math
 import string
 import sys
 import wave
@@ -47,6 +48,10 @@ RIGS: dict[str, str] = {
     "beacon30m_warmup.wav": "30 m beacon, steady carrier, recorded from switch-on. Its crystal warms up: "
     "the frequency falls {d[warmup_abs_hz]:g} Hz with a {s[frequency][warmup_time_constant_s]:g} s time "
     "constant, plus a slow {d[drift_hz_per_min]:+g} Hz/min",
+    "dsb40m_counts": "a second 40 m DSB rig ({d[tone_hz]:g} Hz tone, carrier {t[carrier_suppression_db]:g} dB "
+    "below the sidebands), recorded by a member's own 12-bit receiver. **Its program writes cf32 in ADC "
+    "counts** (full scale {e[full_scale]:g}, not 1.0), and the carrier sits only {t[frequency_offset_hz]:g} Hz "
+    "from the capture centre, where the receiver's DC line is",
 }
 
 #: The answers table: (recording, figure, true value), the same placeholders.
@@ -72,6 +77,9 @@ ANSWERS: list[tuple[str, str, str]] = [
     ("beacon30m_warmup", "frequency offset at start → end",
      "{t[frequency_offset_hz]:.3f} → {t[frequency_end_hz]:.3f} Hz (drift_peak_to_peak_hz "
      "{t[drift_peak_to_peak_hz]:.2f})"),
+    ("dsb40m_counts", "carrier_suppression_db", "{t[carrier_suppression_db]:.2f}"),
+    ("", "full scale / PEP", "{e[full_scale]:g} counts / {t[pep_dbfs]:.2f} dBFS with --full-scale "
+     "{e[full_scale]:g} ({d[pep_re_one_db]:.2f} dB re 1.0 without it)"),
 ]
 
 
@@ -102,7 +110,10 @@ def _derived(spec: Mapping[str, Any]) -> dict[str, Any]:
 
 
 def _fill(template: str, entry: Mapping[str, Any]) -> str:
-    return _FMT.format(template, s=entry["spec"], t=entry["truth"], d=_derived(entry["spec"]))
+    derived = _derived(entry["spec"])
+    if entry.get("full_scale"):
+        derived["pep_re_one_db"] = entry["truth"]["pep_dbfs"] + 20 * math.log10(entry["full_scale"])
+    return _FMT.format(template, s=entry["spec"], t=entry["truth"], d=derived, e=entry)
 
 
 def _rate(hz: float) -> str:
